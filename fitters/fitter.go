@@ -121,6 +121,12 @@ type Report struct {
 	Selection []SelectionRow
 	// FlaggedRows counts training rows flagged as outliers (Student-t fitters).
 	FlaggedRows int
+	// OutlierLevel is the tail probability level of the outlier rule used for
+	// FlaggedRows (Student-t fitters); zero otherwise.
+	OutlierLevel float64
+	// EffectiveComponents counts components whose expected row count reaches
+	// the fitter's threshold (variational fitters); zero when not reported.
+	EffectiveComponents int
 	// Notes are human-readable remarks, e.g. "component 3 collapsed at iteration
 	// 12 and was re-seeded at row 881".
 	Notes []string

@@ -748,8 +748,11 @@ type ScoreRequest struct {
 	IncludeComponentLogDensities bool `protobuf:"varint,4,opt,name=include_component_log_densities,json=includeComponentLogDensities,proto3" json:"include_component_log_densities,omitempty"`
 	// Encoding of returned matrices.
 	ResponseEncoding MatrixEncoding `protobuf:"varint,5,opt,name=response_encoding,json=responseEncoding,proto3,enum=mixd.v1.MatrixEncoding" json:"response_encoding,omitempty"`
-	unknownFields    protoimpl.UnknownFields
-	sizeCache        protoimpl.SizeCache
+	// Tail probability level of the outlier rule for Student-t models; 0 means
+	// the level stored with the model.
+	OutlierLevel  float64 `protobuf:"fixed64,6,opt,name=outlier_level,json=outlierLevel,proto3" json:"outlier_level,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ScoreRequest) Reset() {
@@ -817,6 +820,13 @@ func (x *ScoreRequest) GetResponseEncoding() MatrixEncoding {
 	return MatrixEncoding_MATRIX_ENCODING_UNSPECIFIED
 }
 
+func (x *ScoreRequest) GetOutlierLevel() float64 {
+	if x != nil {
+		return x.OutlierLevel
+	}
+	return 0
+}
+
 // ScoreResponse holds per-row scores.
 type ScoreResponse struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -833,6 +843,13 @@ type ScoreResponse struct {
 	ComponentLogDensities *Matrix `protobuf:"bytes,5,opt,name=component_log_densities,json=componentLogDensities,proto3" json:"component_log_densities,omitempty"`
 	// Sum of the log-densities.
 	LogLikelihood float64 `protobuf:"fixed64,6,opt,name=log_likelihood,json=logLikelihood,proto3" json:"log_likelihood,omitempty"`
+	// Student-t models: each row's outlier statistic (rows x 1), the squared
+	// Mahalanobis distance to its most probable component divided by the
+	// dimension, which follows F(dimension, nu) under that component.
+	OutlierStatistics *Matrix `protobuf:"bytes,7,opt,name=outlier_statistics,json=outlierStatistics,proto3" json:"outlier_statistics,omitempty"`
+	// Student-t models: true where the statistic's F(dimension, nu)
+	// distribution function exceeds the outlier level.
+	Outliers      []bool `protobuf:"varint,8,rep,packed,name=outliers,proto3" json:"outliers,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -909,6 +926,20 @@ func (x *ScoreResponse) GetLogLikelihood() float64 {
 	return 0
 }
 
+func (x *ScoreResponse) GetOutlierStatistics() *Matrix {
+	if x != nil {
+		return x.OutlierStatistics
+	}
+	return nil
+}
+
+func (x *ScoreResponse) GetOutliers() []bool {
+	if x != nil {
+		return x.Outliers
+	}
+	return nil
+}
+
 // ScoreStreamRequest is one chunk of a ScoreStream call. The model, version,
 // flags and encoding are read from the first message.
 type ScoreStreamRequest struct {
@@ -923,8 +954,11 @@ type ScoreStreamRequest struct {
 	IncludeComponentLogDensities bool `protobuf:"varint,4,opt,name=include_component_log_densities,json=includeComponentLogDensities,proto3" json:"include_component_log_densities,omitempty"`
 	// Encoding of returned matrices.
 	ResponseEncoding MatrixEncoding `protobuf:"varint,5,opt,name=response_encoding,json=responseEncoding,proto3,enum=mixd.v1.MatrixEncoding" json:"response_encoding,omitempty"`
-	unknownFields    protoimpl.UnknownFields
-	sizeCache        protoimpl.SizeCache
+	// Tail probability level of the outlier rule for Student-t models; 0 means
+	// the level stored with the model.
+	OutlierLevel  float64 `protobuf:"fixed64,6,opt,name=outlier_level,json=outlierLevel,proto3" json:"outlier_level,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ScoreStreamRequest) Reset() {
@@ -992,6 +1026,13 @@ func (x *ScoreStreamRequest) GetResponseEncoding() MatrixEncoding {
 	return MatrixEncoding_MATRIX_ENCODING_UNSPECIFIED
 }
 
+func (x *ScoreStreamRequest) GetOutlierLevel() float64 {
+	if x != nil {
+		return x.OutlierLevel
+	}
+	return 0
+}
+
 // ScoreStreamResponse holds the scores of one chunk.
 type ScoreStreamResponse struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -1007,6 +1048,13 @@ type ScoreStreamResponse struct {
 	ComponentLogDensities *Matrix `protobuf:"bytes,5,opt,name=component_log_densities,json=componentLogDensities,proto3" json:"component_log_densities,omitempty"`
 	// Sum of this chunk's log-densities.
 	LogLikelihood float64 `protobuf:"fixed64,6,opt,name=log_likelihood,json=logLikelihood,proto3" json:"log_likelihood,omitempty"`
+	// Student-t models: each row's outlier statistic (rows x 1), the squared
+	// Mahalanobis distance to its most probable component divided by the
+	// dimension, which follows F(dimension, nu) under that component.
+	OutlierStatistics *Matrix `protobuf:"bytes,7,opt,name=outlier_statistics,json=outlierStatistics,proto3" json:"outlier_statistics,omitempty"`
+	// Student-t models: true where the statistic's F(dimension, nu)
+	// distribution function exceeds the outlier level.
+	Outliers      []bool `protobuf:"varint,8,rep,packed,name=outliers,proto3" json:"outliers,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1081,6 +1129,20 @@ func (x *ScoreStreamResponse) GetLogLikelihood() float64 {
 		return x.LogLikelihood
 	}
 	return 0
+}
+
+func (x *ScoreStreamResponse) GetOutlierStatistics() *Matrix {
+	if x != nil {
+		return x.OutlierStatistics
+	}
+	return nil
+}
+
+func (x *ScoreStreamResponse) GetOutliers() []bool {
+	if x != nil {
+		return x.Outliers
+	}
+	return nil
 }
 
 // ClassifyRequest asks for component assignments.
@@ -2616,33 +2678,39 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"page_token\x18\x02 \x01(\tR\tpageToken\"b\n" +
 	"\x13ListFitJobsResponse\x12#\n" +
 	"\x04jobs\x18\x01 \x03(\v2\x0f.mixd.v1.FitJobR\x04jobs\x12&\n" +
-	"\x0fnext_page_token\x18\x02 \x01(\tR\rnextPageToken\"\xf0\x01\n" +
+	"\x0fnext_page_token\x18\x02 \x01(\tR\rnextPageToken\"\x95\x02\n" +
 	"\fScoreRequest\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12#\n" +
 	"\x04rows\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x04rows\x12E\n" +
 	"\x1finclude_component_log_densities\x18\x04 \x01(\bR\x1cincludeComponentLogDensities\x12D\n" +
-	"\x11response_encoding\x18\x05 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\"\x98\x02\n" +
+	"\x11response_encoding\x18\x05 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\x12#\n" +
+	"\routlier_level\x18\x06 \x01(\x01R\foutlierLevel\"\xf4\x02\n" +
 	"\rScoreResponse\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x124\n" +
 	"\rlog_densities\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\flogDensities\x121\n" +
 	"\vpercentiles\x18\x04 \x01(\v2\x0f.mixd.v1.MatrixR\vpercentiles\x12G\n" +
 	"\x17component_log_densities\x18\x05 \x01(\v2\x0f.mixd.v1.MatrixR\x15componentLogDensities\x12%\n" +
-	"\x0elog_likelihood\x18\x06 \x01(\x01R\rlogLikelihood\"\xf6\x01\n" +
+	"\x0elog_likelihood\x18\x06 \x01(\x01R\rlogLikelihood\x12>\n" +
+	"\x12outlier_statistics\x18\a \x01(\v2\x0f.mixd.v1.MatrixR\x11outlierStatistics\x12\x1a\n" +
+	"\boutliers\x18\b \x03(\bR\boutliers\"\x9b\x02\n" +
 	"\x12ScoreStreamRequest\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12#\n" +
 	"\x04rows\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x04rows\x12E\n" +
 	"\x1finclude_component_log_densities\x18\x04 \x01(\bR\x1cincludeComponentLogDensities\x12D\n" +
-	"\x11response_encoding\x18\x05 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\"\x9e\x02\n" +
+	"\x11response_encoding\x18\x05 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\x12#\n" +
+	"\routlier_level\x18\x06 \x01(\x01R\foutlierLevel\"\xfa\x02\n" +
 	"\x13ScoreStreamResponse\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x124\n" +
 	"\rlog_densities\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\flogDensities\x121\n" +
 	"\vpercentiles\x18\x04 \x01(\v2\x0f.mixd.v1.MatrixR\vpercentiles\x12G\n" +
 	"\x17component_log_densities\x18\x05 \x01(\v2\x0f.mixd.v1.MatrixR\x15componentLogDensities\x12%\n" +
-	"\x0elog_likelihood\x18\x06 \x01(\x01R\rlogLikelihood\"\x80\x02\n" +
+	"\x0elog_likelihood\x18\x06 \x01(\x01R\rlogLikelihood\x12>\n" +
+	"\x12outlier_statistics\x18\a \x01(\v2\x0f.mixd.v1.MatrixR\x11outlierStatistics\x12\x1a\n" +
+	"\boutliers\x18\b \x03(\bR\boutliers\"\x80\x02\n" +
 	"\x0fClassifyRequest\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12#\n" +
@@ -2857,78 +2925,80 @@ var file_mixd_v1_mixture_service_proto_depIdxs = []int32{
 	45, // 17: mixd.v1.ScoreResponse.log_densities:type_name -> mixd.v1.Matrix
 	45, // 18: mixd.v1.ScoreResponse.percentiles:type_name -> mixd.v1.Matrix
 	45, // 19: mixd.v1.ScoreResponse.component_log_densities:type_name -> mixd.v1.Matrix
-	45, // 20: mixd.v1.ScoreStreamRequest.rows:type_name -> mixd.v1.Matrix
-	46, // 21: mixd.v1.ScoreStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	45, // 22: mixd.v1.ScoreStreamResponse.log_densities:type_name -> mixd.v1.Matrix
-	45, // 23: mixd.v1.ScoreStreamResponse.percentiles:type_name -> mixd.v1.Matrix
-	45, // 24: mixd.v1.ScoreStreamResponse.component_log_densities:type_name -> mixd.v1.Matrix
-	45, // 25: mixd.v1.ClassifyRequest.rows:type_name -> mixd.v1.Matrix
-	46, // 26: mixd.v1.ClassifyRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	47, // 27: mixd.v1.ClassifyResponse.components:type_name -> mixd.v1.Labels
-	45, // 28: mixd.v1.ClassifyResponse.max_posteriors:type_name -> mixd.v1.Matrix
-	45, // 29: mixd.v1.ClassifyResponse.posteriors:type_name -> mixd.v1.Matrix
-	45, // 30: mixd.v1.ClassifyStreamRequest.rows:type_name -> mixd.v1.Matrix
-	46, // 31: mixd.v1.ClassifyStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	47, // 32: mixd.v1.ClassifyStreamResponse.components:type_name -> mixd.v1.Labels
-	45, // 33: mixd.v1.ClassifyStreamResponse.max_posteriors:type_name -> mixd.v1.Matrix
-	45, // 34: mixd.v1.ClassifyStreamResponse.posteriors:type_name -> mixd.v1.Matrix
-	46, // 35: mixd.v1.SampleRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	45, // 36: mixd.v1.SampleResponse.rows:type_name -> mixd.v1.Matrix
-	47, // 37: mixd.v1.SampleResponse.components:type_name -> mixd.v1.Labels
-	46, // 38: mixd.v1.SampleStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	45, // 39: mixd.v1.SampleStreamResponse.rows:type_name -> mixd.v1.Matrix
-	47, // 40: mixd.v1.SampleStreamResponse.components:type_name -> mixd.v1.Labels
-	44, // 41: mixd.v1.GetModelResponse.model:type_name -> mixd.v1.Model
-	44, // 42: mixd.v1.ListModelsResponse.models:type_name -> mixd.v1.Model
-	44, // 43: mixd.v1.ListModelVersionsResponse.models:type_name -> mixd.v1.Model
-	44, // 44: mixd.v1.ImportModelResponse.model:type_name -> mixd.v1.Model
-	48, // 45: mixd.v1.ListFittersResponse.fitters:type_name -> mixd.v1.FitterInfo
-	48, // 46: mixd.v1.ReloadFittersResponse.fitters:type_name -> mixd.v1.FitterInfo
-	0,  // 47: mixd.v1.MixtureService.Fit:input_type -> mixd.v1.FitRequest
-	2,  // 48: mixd.v1.MixtureService.CreateFitJob:input_type -> mixd.v1.CreateFitJobRequest
-	4,  // 49: mixd.v1.MixtureService.GetFitJob:input_type -> mixd.v1.GetFitJobRequest
-	6,  // 50: mixd.v1.MixtureService.WatchFitJob:input_type -> mixd.v1.WatchFitJobRequest
-	8,  // 51: mixd.v1.MixtureService.CancelFitJob:input_type -> mixd.v1.CancelFitJobRequest
-	10, // 52: mixd.v1.MixtureService.ListFitJobs:input_type -> mixd.v1.ListFitJobsRequest
-	12, // 53: mixd.v1.MixtureService.Score:input_type -> mixd.v1.ScoreRequest
-	14, // 54: mixd.v1.MixtureService.ScoreStream:input_type -> mixd.v1.ScoreStreamRequest
-	16, // 55: mixd.v1.MixtureService.Classify:input_type -> mixd.v1.ClassifyRequest
-	18, // 56: mixd.v1.MixtureService.ClassifyStream:input_type -> mixd.v1.ClassifyStreamRequest
-	20, // 57: mixd.v1.MixtureService.Sample:input_type -> mixd.v1.SampleRequest
-	22, // 58: mixd.v1.MixtureService.SampleStream:input_type -> mixd.v1.SampleStreamRequest
-	24, // 59: mixd.v1.MixtureService.GetModel:input_type -> mixd.v1.GetModelRequest
-	26, // 60: mixd.v1.MixtureService.ListModels:input_type -> mixd.v1.ListModelsRequest
-	28, // 61: mixd.v1.MixtureService.ListModelVersions:input_type -> mixd.v1.ListModelVersionsRequest
-	30, // 62: mixd.v1.MixtureService.DeleteModel:input_type -> mixd.v1.DeleteModelRequest
-	32, // 63: mixd.v1.MixtureService.ExportModel:input_type -> mixd.v1.ExportModelRequest
-	34, // 64: mixd.v1.MixtureService.ImportModel:input_type -> mixd.v1.ImportModelRequest
-	36, // 65: mixd.v1.MixtureService.ListFitters:input_type -> mixd.v1.ListFittersRequest
-	38, // 66: mixd.v1.MixtureService.ReloadFitters:input_type -> mixd.v1.ReloadFittersRequest
-	1,  // 67: mixd.v1.MixtureService.Fit:output_type -> mixd.v1.FitResponse
-	3,  // 68: mixd.v1.MixtureService.CreateFitJob:output_type -> mixd.v1.CreateFitJobResponse
-	5,  // 69: mixd.v1.MixtureService.GetFitJob:output_type -> mixd.v1.GetFitJobResponse
-	7,  // 70: mixd.v1.MixtureService.WatchFitJob:output_type -> mixd.v1.WatchFitJobResponse
-	9,  // 71: mixd.v1.MixtureService.CancelFitJob:output_type -> mixd.v1.CancelFitJobResponse
-	11, // 72: mixd.v1.MixtureService.ListFitJobs:output_type -> mixd.v1.ListFitJobsResponse
-	13, // 73: mixd.v1.MixtureService.Score:output_type -> mixd.v1.ScoreResponse
-	15, // 74: mixd.v1.MixtureService.ScoreStream:output_type -> mixd.v1.ScoreStreamResponse
-	17, // 75: mixd.v1.MixtureService.Classify:output_type -> mixd.v1.ClassifyResponse
-	19, // 76: mixd.v1.MixtureService.ClassifyStream:output_type -> mixd.v1.ClassifyStreamResponse
-	21, // 77: mixd.v1.MixtureService.Sample:output_type -> mixd.v1.SampleResponse
-	23, // 78: mixd.v1.MixtureService.SampleStream:output_type -> mixd.v1.SampleStreamResponse
-	25, // 79: mixd.v1.MixtureService.GetModel:output_type -> mixd.v1.GetModelResponse
-	27, // 80: mixd.v1.MixtureService.ListModels:output_type -> mixd.v1.ListModelsResponse
-	29, // 81: mixd.v1.MixtureService.ListModelVersions:output_type -> mixd.v1.ListModelVersionsResponse
-	31, // 82: mixd.v1.MixtureService.DeleteModel:output_type -> mixd.v1.DeleteModelResponse
-	33, // 83: mixd.v1.MixtureService.ExportModel:output_type -> mixd.v1.ExportModelResponse
-	35, // 84: mixd.v1.MixtureService.ImportModel:output_type -> mixd.v1.ImportModelResponse
-	37, // 85: mixd.v1.MixtureService.ListFitters:output_type -> mixd.v1.ListFittersResponse
-	39, // 86: mixd.v1.MixtureService.ReloadFitters:output_type -> mixd.v1.ReloadFittersResponse
-	67, // [67:87] is the sub-list for method output_type
-	47, // [47:67] is the sub-list for method input_type
-	47, // [47:47] is the sub-list for extension type_name
-	47, // [47:47] is the sub-list for extension extendee
-	0,  // [0:47] is the sub-list for field type_name
+	45, // 20: mixd.v1.ScoreResponse.outlier_statistics:type_name -> mixd.v1.Matrix
+	45, // 21: mixd.v1.ScoreStreamRequest.rows:type_name -> mixd.v1.Matrix
+	46, // 22: mixd.v1.ScoreStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	45, // 23: mixd.v1.ScoreStreamResponse.log_densities:type_name -> mixd.v1.Matrix
+	45, // 24: mixd.v1.ScoreStreamResponse.percentiles:type_name -> mixd.v1.Matrix
+	45, // 25: mixd.v1.ScoreStreamResponse.component_log_densities:type_name -> mixd.v1.Matrix
+	45, // 26: mixd.v1.ScoreStreamResponse.outlier_statistics:type_name -> mixd.v1.Matrix
+	45, // 27: mixd.v1.ClassifyRequest.rows:type_name -> mixd.v1.Matrix
+	46, // 28: mixd.v1.ClassifyRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	47, // 29: mixd.v1.ClassifyResponse.components:type_name -> mixd.v1.Labels
+	45, // 30: mixd.v1.ClassifyResponse.max_posteriors:type_name -> mixd.v1.Matrix
+	45, // 31: mixd.v1.ClassifyResponse.posteriors:type_name -> mixd.v1.Matrix
+	45, // 32: mixd.v1.ClassifyStreamRequest.rows:type_name -> mixd.v1.Matrix
+	46, // 33: mixd.v1.ClassifyStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	47, // 34: mixd.v1.ClassifyStreamResponse.components:type_name -> mixd.v1.Labels
+	45, // 35: mixd.v1.ClassifyStreamResponse.max_posteriors:type_name -> mixd.v1.Matrix
+	45, // 36: mixd.v1.ClassifyStreamResponse.posteriors:type_name -> mixd.v1.Matrix
+	46, // 37: mixd.v1.SampleRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	45, // 38: mixd.v1.SampleResponse.rows:type_name -> mixd.v1.Matrix
+	47, // 39: mixd.v1.SampleResponse.components:type_name -> mixd.v1.Labels
+	46, // 40: mixd.v1.SampleStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	45, // 41: mixd.v1.SampleStreamResponse.rows:type_name -> mixd.v1.Matrix
+	47, // 42: mixd.v1.SampleStreamResponse.components:type_name -> mixd.v1.Labels
+	44, // 43: mixd.v1.GetModelResponse.model:type_name -> mixd.v1.Model
+	44, // 44: mixd.v1.ListModelsResponse.models:type_name -> mixd.v1.Model
+	44, // 45: mixd.v1.ListModelVersionsResponse.models:type_name -> mixd.v1.Model
+	44, // 46: mixd.v1.ImportModelResponse.model:type_name -> mixd.v1.Model
+	48, // 47: mixd.v1.ListFittersResponse.fitters:type_name -> mixd.v1.FitterInfo
+	48, // 48: mixd.v1.ReloadFittersResponse.fitters:type_name -> mixd.v1.FitterInfo
+	0,  // 49: mixd.v1.MixtureService.Fit:input_type -> mixd.v1.FitRequest
+	2,  // 50: mixd.v1.MixtureService.CreateFitJob:input_type -> mixd.v1.CreateFitJobRequest
+	4,  // 51: mixd.v1.MixtureService.GetFitJob:input_type -> mixd.v1.GetFitJobRequest
+	6,  // 52: mixd.v1.MixtureService.WatchFitJob:input_type -> mixd.v1.WatchFitJobRequest
+	8,  // 53: mixd.v1.MixtureService.CancelFitJob:input_type -> mixd.v1.CancelFitJobRequest
+	10, // 54: mixd.v1.MixtureService.ListFitJobs:input_type -> mixd.v1.ListFitJobsRequest
+	12, // 55: mixd.v1.MixtureService.Score:input_type -> mixd.v1.ScoreRequest
+	14, // 56: mixd.v1.MixtureService.ScoreStream:input_type -> mixd.v1.ScoreStreamRequest
+	16, // 57: mixd.v1.MixtureService.Classify:input_type -> mixd.v1.ClassifyRequest
+	18, // 58: mixd.v1.MixtureService.ClassifyStream:input_type -> mixd.v1.ClassifyStreamRequest
+	20, // 59: mixd.v1.MixtureService.Sample:input_type -> mixd.v1.SampleRequest
+	22, // 60: mixd.v1.MixtureService.SampleStream:input_type -> mixd.v1.SampleStreamRequest
+	24, // 61: mixd.v1.MixtureService.GetModel:input_type -> mixd.v1.GetModelRequest
+	26, // 62: mixd.v1.MixtureService.ListModels:input_type -> mixd.v1.ListModelsRequest
+	28, // 63: mixd.v1.MixtureService.ListModelVersions:input_type -> mixd.v1.ListModelVersionsRequest
+	30, // 64: mixd.v1.MixtureService.DeleteModel:input_type -> mixd.v1.DeleteModelRequest
+	32, // 65: mixd.v1.MixtureService.ExportModel:input_type -> mixd.v1.ExportModelRequest
+	34, // 66: mixd.v1.MixtureService.ImportModel:input_type -> mixd.v1.ImportModelRequest
+	36, // 67: mixd.v1.MixtureService.ListFitters:input_type -> mixd.v1.ListFittersRequest
+	38, // 68: mixd.v1.MixtureService.ReloadFitters:input_type -> mixd.v1.ReloadFittersRequest
+	1,  // 69: mixd.v1.MixtureService.Fit:output_type -> mixd.v1.FitResponse
+	3,  // 70: mixd.v1.MixtureService.CreateFitJob:output_type -> mixd.v1.CreateFitJobResponse
+	5,  // 71: mixd.v1.MixtureService.GetFitJob:output_type -> mixd.v1.GetFitJobResponse
+	7,  // 72: mixd.v1.MixtureService.WatchFitJob:output_type -> mixd.v1.WatchFitJobResponse
+	9,  // 73: mixd.v1.MixtureService.CancelFitJob:output_type -> mixd.v1.CancelFitJobResponse
+	11, // 74: mixd.v1.MixtureService.ListFitJobs:output_type -> mixd.v1.ListFitJobsResponse
+	13, // 75: mixd.v1.MixtureService.Score:output_type -> mixd.v1.ScoreResponse
+	15, // 76: mixd.v1.MixtureService.ScoreStream:output_type -> mixd.v1.ScoreStreamResponse
+	17, // 77: mixd.v1.MixtureService.Classify:output_type -> mixd.v1.ClassifyResponse
+	19, // 78: mixd.v1.MixtureService.ClassifyStream:output_type -> mixd.v1.ClassifyStreamResponse
+	21, // 79: mixd.v1.MixtureService.Sample:output_type -> mixd.v1.SampleResponse
+	23, // 80: mixd.v1.MixtureService.SampleStream:output_type -> mixd.v1.SampleStreamResponse
+	25, // 81: mixd.v1.MixtureService.GetModel:output_type -> mixd.v1.GetModelResponse
+	27, // 82: mixd.v1.MixtureService.ListModels:output_type -> mixd.v1.ListModelsResponse
+	29, // 83: mixd.v1.MixtureService.ListModelVersions:output_type -> mixd.v1.ListModelVersionsResponse
+	31, // 84: mixd.v1.MixtureService.DeleteModel:output_type -> mixd.v1.DeleteModelResponse
+	33, // 85: mixd.v1.MixtureService.ExportModel:output_type -> mixd.v1.ExportModelResponse
+	35, // 86: mixd.v1.MixtureService.ImportModel:output_type -> mixd.v1.ImportModelResponse
+	37, // 87: mixd.v1.MixtureService.ListFitters:output_type -> mixd.v1.ListFittersResponse
+	39, // 88: mixd.v1.MixtureService.ReloadFitters:output_type -> mixd.v1.ReloadFittersResponse
+	69, // [69:89] is the sub-list for method output_type
+	49, // [49:69] is the sub-list for method input_type
+	49, // [49:49] is the sub-list for extension type_name
+	49, // [49:49] is the sub-list for extension extendee
+	0,  // [0:49] is the sub-list for field type_name
 }
 
 func init() { file_mixd_v1_mixture_service_proto_init() }

@@ -790,8 +790,14 @@ type FitReport struct {
 	Notes []string `protobuf:"bytes,17,rep,name=notes,proto3" json:"notes,omitempty"`
 	// Training log-density quantiles.
 	TrainingQuantiles *DensityQuantiles `protobuf:"bytes,18,opt,name=training_quantiles,json=trainingQuantiles,proto3" json:"training_quantiles,omitempty"`
-	unknownFields     protoimpl.UnknownFields
-	sizeCache         protoimpl.SizeCache
+	// Tail probability level of the outlier rule (Student-t models): a row is
+	// flagged when the F(p, nu) distribution function of its statistic exceeds it.
+	OutlierLevel float64 `protobuf:"fixed64,19,opt,name=outlier_level,json=outlierLevel,proto3" json:"outlier_level,omitempty"`
+	// Components whose expected row count reaches the fitter's threshold
+	// (variational fitters); 0 when not reported.
+	EffectiveComponents int32 `protobuf:"varint,20,opt,name=effective_components,json=effectiveComponents,proto3" json:"effective_components,omitempty"`
+	unknownFields       protoimpl.UnknownFields
+	sizeCache           protoimpl.SizeCache
 }
 
 func (x *FitReport) Reset() {
@@ -948,6 +954,20 @@ func (x *FitReport) GetTrainingQuantiles() *DensityQuantiles {
 		return x.TrainingQuantiles
 	}
 	return nil
+}
+
+func (x *FitReport) GetOutlierLevel() float64 {
+	if x != nil {
+		return x.OutlierLevel
+	}
+	return 0
+}
+
+func (x *FitReport) GetEffectiveComponents() int32 {
+	if x != nil {
+		return x.EffectiveComponents
+	}
+	return 0
 }
 
 // Model is one immutable version of a fitted mixture.
@@ -1719,7 +1739,7 @@ const file_mixd_v1_types_proto_rawDesc = "" +
 	"iterations\"O\n" +
 	"\x10DensityQuantiles\x12\x16\n" +
 	"\x06levels\x18\x01 \x03(\x01R\x06levels\x12#\n" +
-	"\rlog_densities\x18\x02 \x03(\x01R\flogDensities\"\xc2\x05\n" +
+	"\rlog_densities\x18\x02 \x03(\x01R\flogDensities\"\x9a\x06\n" +
 	"\tFitReport\x12\x16\n" +
 	"\x06fitter\x18\x01 \x01(\tR\x06fitter\x12%\n" +
 	"\x0efitter_version\x18\x02 \x01(\tR\rfitterVersion\x12<\n" +
@@ -1741,7 +1761,9 @@ const file_mixd_v1_types_proto_rawDesc = "" +
 	"\tselection\x18\x0f \x03(\v2\x15.mixd.v1.SelectionRowR\tselection\x12!\n" +
 	"\fflagged_rows\x18\x10 \x01(\x03R\vflaggedRows\x12\x14\n" +
 	"\x05notes\x18\x11 \x03(\tR\x05notes\x12H\n" +
-	"\x12training_quantiles\x18\x12 \x01(\v2\x19.mixd.v1.DensityQuantilesR\x11trainingQuantiles\x1a;\n" +
+	"\x12training_quantiles\x18\x12 \x01(\v2\x19.mixd.v1.DensityQuantilesR\x11trainingQuantiles\x12#\n" +
+	"\routlier_level\x18\x13 \x01(\x01R\foutlierLevel\x121\n" +
+	"\x14effective_components\x18\x14 \x01(\x05R\x13effectiveComponents\x1a;\n" +
 	"\rSettingsEntry\x12\x10\n" +
 	"\x03key\x18\x01 \x01(\tR\x03key\x12\x14\n" +
 	"\x05value\x18\x02 \x01(\tR\x05value:\x028\x01\"\xd3\x01\n" +

@@ -608,9 +608,13 @@ type Report struct {
 	// Notes.
 	Notes []string `protobuf:"bytes,11,rep,name=notes,proto3" json:"notes,omitempty"`
 	// Effective settings.
-	Settings      map[string]string `protobuf:"bytes,12,rep,name=settings,proto3" json:"settings,omitempty" protobuf_key:"bytes,1,opt,name=key" protobuf_val:"bytes,2,opt,name=value"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	Settings map[string]string `protobuf:"bytes,12,rep,name=settings,proto3" json:"settings,omitempty" protobuf_key:"bytes,1,opt,name=key" protobuf_val:"bytes,2,opt,name=value"`
+	// Outlier rule level (Student-t fitters).
+	OutlierLevel float64 `protobuf:"fixed64,13,opt,name=outlier_level,json=outlierLevel,proto3" json:"outlier_level,omitempty"`
+	// Effective number of components (variational fitters).
+	EffectiveComponents int32 `protobuf:"varint,14,opt,name=effective_components,json=effectiveComponents,proto3" json:"effective_components,omitempty"`
+	unknownFields       protoimpl.UnknownFields
+	sizeCache           protoimpl.SizeCache
 }
 
 func (x *Report) Reset() {
@@ -725,6 +729,20 @@ func (x *Report) GetSettings() map[string]string {
 		return x.Settings
 	}
 	return nil
+}
+
+func (x *Report) GetOutlierLevel() float64 {
+	if x != nil {
+		return x.OutlierLevel
+	}
+	return 0
+}
+
+func (x *Report) GetEffectiveComponents() int32 {
+	if x != nil {
+		return x.EffectiveComponents
+	}
+	return 0
 }
 
 // Result is a finished fit.
@@ -925,7 +943,7 @@ const file_mixd_fitter_v1_fitter_proto_rawDesc = "" +
 	"\arestart\x18\x02 \x01(\x05R\arestart\x12\x1c\n" +
 	"\titeration\x18\x03 \x01(\x05R\titeration\x12\x1c\n" +
 	"\tobjective\x18\x04 \x01(\x01R\tobjective\x12#\n" +
-	"\relapsed_nanos\x18\x05 \x01(\x03R\felapsedNanos\"\xcc\x03\n" +
+	"\relapsed_nanos\x18\x05 \x01(\x03R\felapsedNanos\"\xa4\x04\n" +
 	"\x06Report\x12\x1e\n" +
 	"\n" +
 	"iterations\x18\x01 \x01(\x05R\n" +
@@ -941,7 +959,9 @@ const file_mixd_fitter_v1_fitter_proto_rawDesc = "" +
 	"\fflagged_rows\x18\n" +
 	" \x01(\x03R\vflaggedRows\x12\x14\n" +
 	"\x05notes\x18\v \x03(\tR\x05notes\x12@\n" +
-	"\bsettings\x18\f \x03(\v2$.mixd.fitter.v1.Report.SettingsEntryR\bsettings\x1a;\n" +
+	"\bsettings\x18\f \x03(\v2$.mixd.fitter.v1.Report.SettingsEntryR\bsettings\x12#\n" +
+	"\routlier_level\x18\r \x01(\x01R\foutlierLevel\x121\n" +
+	"\x14effective_components\x18\x0e \x01(\x05R\x13effectiveComponents\x1a;\n" +
 	"\rSettingsEntry\x12\x10\n" +
 	"\x03key\x18\x01 \x01(\tR\x03key\x12\x14\n" +
 	"\x05value\x18\x02 \x01(\tR\x05value:\x028\x01\"m\n" +
