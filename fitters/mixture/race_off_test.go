@@ -1,0 +1,5 @@
+//go:build !race
+
+package mixture
+
+const raceEnabled = false
