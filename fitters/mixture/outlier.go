@@ -14,8 +14,7 @@ import (
 // in a thousand drawn from the fitted model itself is flagged by chance. A
 // tenth of a percent is a conventional "rare" threshold (common practice); it
 // keeps false flags on clean data of a few thousand rows to a handful while
-// gross errors, whose distribution-function values are 1 to many digits, are
-// still flagged.
+// rows far beyond the bulk of their component are still flagged.
 const DefaultOutlierLevel = 0.999
 
 // LargeDFOutlier is the smallest degrees of freedom from which
@@ -50,8 +49,8 @@ const outlierBlock = 8192
 // row. A distance too large for float64 gives stat +Inf and a flag.
 //
 // A flag is a statement about statistical rarity under the fitted model: the
-// row is further from its component than all but a (1 − level) share of rows
-// the model itself would generate. It is not a diagnosis of a fault, and
+// row is further from its most probable component than all but a
+// (1 − level) share of the rows that component itself would generate. It is not a diagnosis of a fault, and
 // decisions about equipment or safety remain with the operator's own
 // procedures.
 func (m *Model) Outliers(x []float64, level float64, stat []float64, flags []bool) error {

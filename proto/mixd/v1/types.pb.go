@@ -80,7 +80,7 @@ func (MatrixEncoding) EnumDescriptor() ([]byte, []int) {
 type Family int32
 
 const (
-	// Not set: Gaussian for fits.
+	// Not set: the fitter's default family (gaussian for em, student_t for tmix).
 	Family_FAMILY_UNSPECIFIED Family = 0
 	// Multivariate normal components.
 	Family_FAMILY_GAUSSIAN Family = 1

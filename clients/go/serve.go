@@ -1,0 +1,430 @@
+package mixdclient
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+
+	mixdv1 "github.com/mixd-dev/mixd/proto/mixd/v1"
+)
+
+// ScoreOptions tune Score.
+type ScoreOptions struct {
+	// Version of the model; 0 means the newest.
+	Version int64
+	// ComponentLogDensities asks for each component's log-density too.
+	ComponentLogDensities bool
+}
+
+// ScoreResult holds per-row scores.
+type ScoreResult struct {
+	// Model and Version that scored (every chunk uses the same version).
+	Model   string
+	Version int64
+	// LogDensities holds the mixture log-density of each row.
+	LogDensities []float64
+	// Percentiles holds each row's percentile in [0, 100] among the training
+	// rows' log-densities: 0.1 means rarer than 99.9% of the training rows.
+	Percentiles []float64
+	// ComponentLogDensities is rows×K when asked for (without the weights).
+	ComponentLogDensities Matrix
+	// LogLikelihood is the sum of the log-densities.
+	LogLikelihood float64
+}
+
+// Score returns the log-density and training percentile of every row.
+// Batches larger than one message go through ScoreStream in chunks; the
+// result is the same as one call's.
+func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts ScoreOptions) (*ScoreResult, error) {
+	if err := rows.check("rows"); err != nil {
+		return nil, err
+	}
+	width := rows.Cols
+	if opts.ComponentLogDensities {
+		// The response is wider than the request: size chunks by it.
+		k, version, err := c.components(ctx, model, opts.Version)
+		if err != nil {
+			return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
+		}
+		width, opts.Version = max(width, k+2), version
+	}
+	step := c.rowsPerChunk(8 * width)
+	if rows.Rows <= step {
+		uctx, cancel := c.unaryContext(ctx)
+		defer cancel()
+		resp, err := c.svc.Score(uctx, &mixdv1.ScoreRequest{
+			Model:                        model,
+			Version:                      opts.Version,
+			Rows:                         rows.ToProto(),
+			IncludeComponentLogDensities: opts.ComponentLogDensities,
+			ResponseEncoding:             mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN,
+		})
+		if err != nil {
+			return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
+		}
+		res := &ScoreResult{Model: resp.GetModel(), Version: resp.GetVersion(), LogLikelihood: resp.GetLogLikelihood()}
+		if err := res.add(rows.Rows, resp.GetLogDensities(), resp.GetPercentiles(), resp.GetComponentLogDensities(), opts.ComponentLogDensities); err != nil {
+			return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
+		}
+		return res, nil
+	}
+
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	stream, err := c.svc.ScoreStream(ctx)
+	if err != nil {
+		return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
+	}
+	chunks := chunkSizes(rows.Rows, step)
+	sendDone := make(chan error, 1)
+	go func() {
+		lo := 0
+		sendDone <- sendAll(len(chunks), func(i int, first bool) error {
+			req := &mixdv1.ScoreStreamRequest{Rows: rows.slice(lo, lo+chunks[i]).ToProto()}
+			lo += chunks[i]
+			if first {
+				req.Model = model
+				req.Version = opts.Version
+				req.IncludeComponentLogDensities = opts.ComponentLogDensities
+				req.ResponseEncoding = mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN
+			}
+			return stream.Send(req)
+		}, stream.CloseSend)
+	}()
+	res := &ScoreResult{}
+	for i := 0; ; i++ {
+		resp, err := stream.Recv()
+		if err == io.EOF {
+			if serr := <-sendDone; serr != nil {
+				return nil, fmt.Errorf("mixdclient: score %s: upload: %w", model, serr)
+			}
+			if i != len(chunks) {
+				return nil, fmt.Errorf("mixdclient: score %s: %d responses for %d chunks", model, i, len(chunks))
+			}
+			return res, nil
+		}
+		if err != nil {
+			return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
+		}
+		if i >= len(chunks) {
+			return nil, fmt.Errorf("mixdclient: score %s: more responses than the %d chunks sent", model, len(chunks))
+		}
+		if i == 0 {
+			res.Model, res.Version = resp.GetModel(), resp.GetVersion()
+		}
+		res.LogLikelihood += resp.GetLogLikelihood()
+		if err := res.add(chunks[i], resp.GetLogDensities(), resp.GetPercentiles(), resp.GetComponentLogDensities(), opts.ComponentLogDensities); err != nil {
+			return nil, fmt.Errorf("mixdclient: score %s: chunk %d: %w", model, i, err)
+		}
+	}
+}
+
+// add appends one response's columns to r.
+func (r *ScoreResult) add(n int, ld, pct, comp *mixdv1.Matrix, wantComp bool) error {
+	l, err := column(ld, "log_densities", n)
+	if err != nil {
+		return err
+	}
+	p, err := column(pct, "percentiles", n)
+	if err != nil {
+		return err
+	}
+	r.LogDensities = append(r.LogDensities, l...)
+	r.Percentiles = append(r.Percentiles, p...)
+	if wantComp {
+		if err := appendRows(&r.ComponentLogDensities, comp, "component_log_densities", n); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// appendRows decodes pb (n rows) and appends it to dst.
+func appendRows(dst *Matrix, pb *mixdv1.Matrix, field string, n int) error {
+	m, err := DecodeMatrix(pb)
+	if err != nil {
+		return fmt.Errorf("%s: %w", field, err)
+	}
+	return appendMatrix(dst, m, field, n)
+}
+
+// appendMatrix appends m (which must have n rows) to dst.
+func appendMatrix(dst *Matrix, m Matrix, field string, n int) error {
+	if m.Rows != n {
+		return fmt.Errorf("mixdclient: %s has %d rows, want %d", field, m.Rows, n)
+	}
+	if n == 0 {
+		return nil
+	}
+	if dst.Rows > 0 && m.Cols != dst.Cols {
+		return fmt.Errorf("mixdclient: %s has %d columns, earlier chunks had %d", field, m.Cols, dst.Cols)
+	}
+	dst.Cols = m.Cols
+	dst.Rows += m.Rows
+	dst.Values = append(dst.Values, m.Values...)
+	return nil
+}
+
+// components returns the number of components of a model version and the
+// version itself (resolving 0 to the newest), so that later calls use it.
+func (c *Client) components(ctx context.Context, model string, version int64) (int, int64, error) {
+	uctx, cancel := c.unaryContext(ctx)
+	defer cancel()
+	resp, err := c.svc.GetModel(uctx, &mixdv1.GetModelRequest{Name: model, Version: version})
+	if err != nil {
+		return 0, 0, err
+	}
+	return len(resp.GetModel().GetParameters().GetComponents()), resp.GetModel().GetVersion(), nil
+}
+
+// chunkSizes splits n rows into chunks of at most step rows.
+func chunkSizes(n, step int) []int {
+	var out []int
+	for n > 0 {
+		k := min(n, step)
+		out = append(out, k)
+		n -= k
+	}
+	return out
+}
+
+// ClassifyOptions tune Classify.
+type ClassifyOptions struct {
+	// Version of the model; 0 means the newest.
+	Version int64
+	// MinPosterior marks rows whose largest posterior is below it as not
+	// confident; 0 disables.
+	MinPosterior float64
+	// Posteriors asks for every component's posterior probability.
+	Posteriors bool
+}
+
+// ClassifyResult holds per-row assignments.
+type ClassifyResult struct {
+	// Model and Version that classified.
+	Model   string
+	Version int64
+	// Components holds each row's most probable component (0-based).
+	Components []int
+	// MaxPosteriors holds each row's largest posterior probability.
+	MaxPosteriors []float64
+	// Confident is false where the largest posterior is below MinPosterior.
+	Confident []bool
+	// Posteriors is rows×K when asked for.
+	Posteriors Matrix
+}
+
+// Classify returns the most probable component of every row. Batches larger
+// than one message go through ClassifyStream in chunks.
+func (c *Client) Classify(ctx context.Context, model string, rows Matrix, opts ClassifyOptions) (*ClassifyResult, error) {
+	if err := rows.check("rows"); err != nil {
+		return nil, err
+	}
+	width := rows.Cols
+	if opts.Posteriors {
+		k, version, err := c.components(ctx, model, opts.Version)
+		if err != nil {
+			return nil, fmt.Errorf("mixdclient: classify %s: %w", model, err)
+		}
+		width, opts.Version = max(width, k+2), version
+	}
+	step := c.rowsPerChunk(8 * width)
+	if rows.Rows <= step {
+		uctx, cancel := c.unaryContext(ctx)
+		defer cancel()
+		resp, err := c.svc.Classify(uctx, &mixdv1.ClassifyRequest{
+			Model:             model,
+			Version:           opts.Version,
+			Rows:              rows.ToProto(),
+			MinPosterior:      opts.MinPosterior,
+			IncludePosteriors: opts.Posteriors,
+			ResponseEncoding:  mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN,
+		})
+		if err != nil {
+			return nil, fmt.Errorf("mixdclient: classify %s: %w", model, err)
+		}
+		res := &ClassifyResult{Model: resp.GetModel(), Version: resp.GetVersion()}
+		if err := res.add(rows.Rows, resp.GetComponents(), resp.GetMaxPosteriors(), resp.GetPosteriors(), resp.GetConfident(), opts.Posteriors); err != nil {
+			return nil, fmt.Errorf("mixdclient: classify %s: %w", model, err)
+		}
+		return res, nil
+	}
+
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	stream, err := c.svc.ClassifyStream(ctx)
+	if err != nil {
+		return nil, fmt.Errorf("mixdclient: classify %s: %w", model, err)
+	}
+	chunks := chunkSizes(rows.Rows, step)
+	sendDone := make(chan error, 1)
+	go func() {
+		lo := 0
+		sendDone <- sendAll(len(chunks), func(i int, first bool) error {
+			req := &mixdv1.ClassifyStreamRequest{Rows: rows.slice(lo, lo+chunks[i]).ToProto()}
+			lo += chunks[i]
+			if first {
+				req.Model = model
+				req.Version = opts.Version
+				req.MinPosterior = opts.MinPosterior
+				req.IncludePosteriors = opts.Posteriors
+				req.ResponseEncoding = mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN
+			}
+			return stream.Send(req)
+		}, stream.CloseSend)
+	}()
+	res := &ClassifyResult{}
+	for i := 0; ; i++ {
+		resp, err := stream.Recv()
+		if err == io.EOF {
+			if serr := <-sendDone; serr != nil {
+				return nil, fmt.Errorf("mixdclient: classify %s: upload: %w", model, serr)
+			}
+			if i != len(chunks) {
+				return nil, fmt.Errorf("mixdclient: classify %s: %d responses for %d chunks", model, i, len(chunks))
+			}
+			return res, nil
+		}
+		if err != nil {
+			return nil, fmt.Errorf("mixdclient: classify %s: %w", model, err)
+		}
+		if i >= len(chunks) {
+			return nil, fmt.Errorf("mixdclient: classify %s: more responses than the %d chunks sent", model, len(chunks))
+		}
+		if i == 0 {
+			res.Model, res.Version = resp.GetModel(), resp.GetVersion()
+		}
+		if err := res.add(chunks[i], resp.GetComponents(), resp.GetMaxPosteriors(), resp.GetPosteriors(), resp.GetConfident(), opts.Posteriors); err != nil {
+			return nil, fmt.Errorf("mixdclient: classify %s: chunk %d: %w", model, i, err)
+		}
+	}
+}
+
+// add appends one response's columns to r.
+func (r *ClassifyResult) add(n int, labels *mixdv1.Labels, maxPost, post *mixdv1.Matrix, confident []bool, wantPost bool) error {
+	comp, err := DecodeLabels(labels)
+	if err != nil {
+		return fmt.Errorf("components: %w", err)
+	}
+	if len(comp) != n {
+		return fmt.Errorf("mixdclient: components has %d labels, want %d", len(comp), n)
+	}
+	mp, err := column(maxPost, "max_posteriors", n)
+	if err != nil {
+		return err
+	}
+	if len(confident) != n {
+		return fmt.Errorf("mixdclient: confident has %d values, want %d", len(confident), n)
+	}
+	r.Components = append(r.Components, comp...)
+	r.MaxPosteriors = append(r.MaxPosteriors, mp...)
+	r.Confident = append(r.Confident, confident...)
+	if wantPost {
+		return appendRows(&r.Posteriors, post, "posteriors", n)
+	}
+	return nil
+}
+
+// SampleOptions tune Sample.
+type SampleOptions struct {
+	// Version of the model; 0 means the newest.
+	Version int64
+	// Seed of the draw; the same seed gives the same rows.
+	Seed uint64
+}
+
+// SampleResult holds drawn rows.
+type SampleResult struct {
+	// Model and Version sampled.
+	Model   string
+	Version int64
+	// Rows is count×dimension.
+	Rows Matrix
+	// Components holds the component each row was drawn from.
+	Components []int
+}
+
+// sampleUnaryRows is the largest count drawn with one unary Sample call;
+// larger counts use SampleStream, whose rows are the same for the same seed.
+const sampleUnaryRows = 4096
+
+// Sample draws count rows from a model.
+func (c *Client) Sample(ctx context.Context, model string, count int, opts SampleOptions) (*SampleResult, error) {
+	if count < 0 {
+		return nil, fmt.Errorf("mixdclient: sample count %d is negative", count)
+	}
+	if count <= sampleUnaryRows {
+		uctx, cancel := c.unaryContext(ctx)
+		defer cancel()
+		resp, err := c.svc.Sample(uctx, &mixdv1.SampleRequest{
+			Model:            model,
+			Version:          opts.Version,
+			Count:            int64(count),
+			Seed:             opts.Seed,
+			ResponseEncoding: mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN,
+		})
+		if err != nil {
+			return nil, fmt.Errorf("mixdclient: sample %s: %w", model, err)
+		}
+		res := &SampleResult{Model: resp.GetModel(), Version: resp.GetVersion()}
+		if err := res.add(resp.GetRows(), resp.GetComponents()); err != nil {
+			return nil, fmt.Errorf("mixdclient: sample %s: %w", model, err)
+		}
+		if res.Rows.Rows != count {
+			return nil, fmt.Errorf("mixdclient: sample %s: got %d rows, asked for %d", model, res.Rows.Rows, count)
+		}
+		return res, nil
+	}
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	stream, err := c.svc.SampleStream(ctx, &mixdv1.SampleStreamRequest{
+		Model:            model,
+		Version:          opts.Version,
+		Count:            int64(count),
+		Seed:             opts.Seed,
+		ResponseEncoding: mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN,
+	})
+	if err != nil {
+		return nil, fmt.Errorf("mixdclient: sample %s: %w", model, err)
+	}
+	res := &SampleResult{}
+	for i := 0; ; i++ {
+		resp, err := stream.Recv()
+		if errors.Is(err, io.EOF) {
+			if res.Rows.Rows != count {
+				return nil, fmt.Errorf("mixdclient: sample %s: got %d rows, asked for %d", model, res.Rows.Rows, count)
+			}
+			return res, nil
+		}
+		if err != nil {
+			return nil, fmt.Errorf("mixdclient: sample %s: %w", model, err)
+		}
+		if i == 0 {
+			res.Model, res.Version = resp.GetModel(), resp.GetVersion()
+		}
+		if err := res.add(resp.GetRows(), resp.GetComponents()); err != nil {
+			return nil, fmt.Errorf("mixdclient: sample %s: chunk %d: %w", model, i, err)
+		}
+	}
+}
+
+// add appends one response's rows and labels to r.
+func (r *SampleResult) add(rows *mixdv1.Matrix, labels *mixdv1.Labels) error {
+	m, err := DecodeMatrix(rows)
+	if err != nil {
+		return fmt.Errorf("rows: %w", err)
+	}
+	comp, err := DecodeLabels(labels)
+	if err != nil {
+		return fmt.Errorf("components: %w", err)
+	}
+	if len(comp) != m.Rows {
+		return fmt.Errorf("mixdclient: %d component labels for %d rows", len(comp), m.Rows)
+	}
+	if err := appendMatrix(&r.Rows, m, "rows", m.Rows); err != nil {
+		return err
+	}
+	r.Components = append(r.Components, comp...)
+	return nil
+}

@@ -1,0 +1,78 @@
+// Command mixctl is the command-line client of the mixd daemon: it fits
+// mixture models to CSV files, scores, classifies and samples with them,
+// and manages stored models and fit jobs.
+//
+// Usage:
+//
+//	mixctl [--addr ADDR] [--timeout D] COMMAND [flags] [args]
+//
+// The global flags may also follow the command. --addr is host:port or
+// unix:/path/to/socket (default: $MIXD_ADDR, else 127.0.0.1:7313).
+// --timeout bounds the whole command; without it fits and watches run until
+// they end and every other call to the daemon waits at most 30 seconds.
+//
+// Commands:
+//
+//	fit --model M [flags] FILE.csv     fit a model; the CSV header names the features
+//	    --fitter NAME                  estimation method (see `mixctl fitters`; default em)
+//	    --components K                 number of components
+//	    --components-range MIN:MAX     fit every K in the range, keep the best by --criterion
+//	    --criterion bic|aic            how the range picks K (default bic)
+//	    --structure full|diagonal|spherical|tied
+//	    --family gaussian|student_t
+//	    --seed N  --max-iterations N  --tolerance X  --restarts N  --ridge X
+//	    --option key=value             fitter-specific setting (repeatable)
+//	    --columns a,b,c                use only these CSV columns
+//	    --detach                       start a fit job, print its name, return
+//	    --quiet                        no progress on standard error
+//	    --format text|json             how to print the stored model
+//	jobs [--format table|json]         recent fit jobs, newest first
+//	job JOB [--format text|json]       one fit job ("fitJobs/ID" or "ID")
+//	watch JOB [--quiet]                follow a job; prints the model when it succeeds
+//	cancel JOB                         cancel a running job
+//	score --model M [flags] FILE.csv   columns row, log_density, percentile
+//	    --version N  --format csv|jsonl  --with-input  --columns a,b,c
+//	    --components                   add component_K_log_density columns
+//	    --below P                      only rows whose percentile is below P
+//	classify --model M [flags] FILE.csv  columns row, component, max_posterior, confident
+//	    --version N  --format csv|jsonl  --with-input  --columns a,b,c
+//	    --min-posterior X              confident=false below this posterior
+//	    --posteriors                   add posterior_K columns
+//	sample --model M --count N [--seed S] [--version N] [--format csv|jsonl]
+//	models [--format table|json]       newest version of every model
+//	show MODEL [--version N] [--format text|json]
+//	versions MODEL [--format table|json]
+//	delete MODEL [--version N]         without --version: every version
+//	export MODEL [--version N] [--output FILE]   the model document (JSON)
+//	import FILE.json [--name ID]       store a document as a new version
+//	fitters [--format table|json]      available fitters and their options
+//	help [COMMAND]
+//
+// FILE may be "-" for standard input. Row numbers in the output of score
+// and classify count data rows from 1 (the header is not a row).
+// Component indices count from 0.
+//
+// The percentile of a row is the share, in percent, of the model's own
+// training rows whose log-density is lower than the row's. It says how rare
+// the row is compared with the training data; it is not a diagnosis, and
+// safety decisions about equipment belong to the operator's own procedures.
+//
+// Fit progress goes to standard error: one line redrawn in place when
+// standard error is a terminal, one line per event otherwise, none with
+// --quiet. Errors print the daemon's message followed by its gRPC code.
+//
+// Exit codes (scripts may rely on them):
+//
+//	0   success
+//	1   the daemon failed (internal error, data loss, ...) or output could not be written
+//	2   usage error: unknown command or flag, missing or extra argument, bad flag value
+//	3   not found: no such model, version or fit job
+//	4   invalid input: the daemon rejected the request (INVALID_ARGUMENT), or a file
+//	    mixctl reads is unreadable, not CSV, or holds a value that is not a finite number
+//	5   unavailable: the daemon cannot be reached or a fitter process crashed; retry later
+//	6   timed out (--timeout, or a deadline inside the daemon)
+//	7   cancelled: interrupted by a signal, or the fit job was cancelled
+//	8   conflict with the current state (FAILED_PRECONDITION, ALREADY_EXISTS)
+//	9   a daemon limit was exceeded (RESOURCE_EXHAUSTED)
+//	10  not supported by the daemon or the chosen fitter (UNIMPLEMENTED)
+package main

@@ -1,0 +1,94 @@
+/*
+Command mixd is the mixd daemon: it fits, stores and serves finite mixture models
+over gRPC (service mixd.v1.MixtureService).
+
+Usage:
+
+	mixd serve [flags]   run the daemon until SIGINT or SIGTERM
+	mixd fitter NAME     run the built-in fitter NAME as a plugin process
+	mixd version         print the version
+
+# mixd serve
+
+Flags (each also accepted with a single dash):
+
+	--listen ADDR              127.0.0.1:7313. TCP "host:port" (port 0 picks a free
+	                           port) or a Unix socket: "unix:/path/mixd.sock", or any
+	                           address containing '/'. A stale socket file is removed;
+	                           the socket is created with mode 0600.
+	--data-dir DIR             ./mixd-data. Directory of the model store (created when
+	                           missing).
+	--plugin-dir DIR           "" (built-in fitters only). Directory of external fitter
+	                           executables; rescanned on SIGHUP and by ReloadFitters.
+	--cache-bytes N            268435456 (256 MiB). Byte budget of the model cache;
+	                           accepts KiB, MiB and GiB suffixes.
+	--max-concurrent-fits N    2. Fits that run at once; further jobs wait as QUEUED.
+	--max-rows N               1000000. Rows per Score/Classify request or stream
+	                           message, and per Sample response.
+	--max-dimension N          1024. Columns of a model or a request.
+	--max-components N         256. Components of a fit (or range) or imported model.
+	--max-sample-count N       100000000. Rows one SampleStream call may draw.
+	--max-fit-rows N           10000000. Training rows of one fit.
+	--max-fit-values N         67108864. Training values (rows × columns) of one fit
+	                           (512 MiB of float64; 1 000 000 × 32 fits).
+	--max-active-jobs N        16. Fit jobs receiving, queued or running at once.
+	--job-history N            1000. Finished fit jobs kept in memory.
+	--max-message-bytes N      67108864 (64 MiB). Largest gRPC message received or
+	                           sent; larger responses are refused with
+	                           RESOURCE_EXHAUSTED naming the streaming call to use.
+	--shutdown-timeout D       10s. Time running calls get to finish on shutdown.
+	--log-level L              info. debug, info, warn or error.
+
+Once it accepts connections, serve writes exactly one line of this form to
+stderr (tests and scripts parse it; its wording is stable):
+
+	mixd: listening on 127.0.0.1:41234
+	mixd: listening on unix:/run/mixd/mixd.sock
+
+Everything else on stderr is the log (log/slog text format). Nothing is
+written to stdout.
+
+The daemon serves grpc.health.v1.Health ("" and "mixd.v1.MixtureService"
+are SERVING) and server reflection, so grpcurl works against it.
+
+Signals: SIGINT and SIGTERM shut down gracefully: health turns NOT_SERVING,
+running calls get --shutdown-timeout to finish and are then stopped, running
+fit jobs are cancelled (they end FAILED with UNAVAILABLE), the fitter
+processes are stopped and the store is closed. SIGHUP rescans --plugin-dir.
+
+Built-in fitters run as child processes of the daemon's own executable,
+started as "mixd fitter NAME"; plugin mode speaks only gRPC (stdout carries
+the plugin handshake) and must not be started by hand.
+
+Exit status: 0 after a clean shutdown (or for version and help), 1 when the
+daemon cannot start or fails while serving, 2 for a usage error.
+
+# Error codes
+
+Every RPC fails with one canonical gRPC code and a message naming the
+field, row or limit:
+
+	INVALID_ARGUMENT     malformed request: shape, non-finite value (row and
+	                     column named), bad name, enum or setting, unknown
+	                     fitter, bad page token, invalid model document
+	RESOURCE_EXHAUSTED   a configured limit (the message names the flag),
+	                     no free fit-job slot (--max-active-jobs)
+	NOT_FOUND            model, version or fit job does not exist
+	FAILED_PRECONDITION  the fitter cannot fit this data (e.g. fewer distinct
+	                     rows than components); cancelling a job that ended
+	UNIMPLEMENTED        the fitter does not support the family, structure or
+	                     option asked for
+	UNAVAILABLE          the fitter process crashed or was killed, or the daemon
+	                     is shutting down: retryable
+	DATA_LOSS            a stored model is corrupt or no longer validates; it is
+	                     never served
+	CANCELLED            the caller or CancelFitJob cancelled the fit
+	DEADLINE_EXCEEDED    the call's deadline passed
+	INTERNAL             anything else (for example a fitter returned invalid
+	                     parameters), with the message
+
+ALREADY_EXISTS is not used: a fit or import of an existing model makes a new
+version. Errors reported by fitter plugins are translated into these codes,
+never passed through unchanged.
+*/
+package main

@@ -1,0 +1,349 @@
+package em
+
+import (
+	"math"
+	"runtime"
+	"sync"
+	"sync/atomic"
+
+	"github.com/mixd-dev/mixd/fitters/mixture"
+)
+
+// Chunking of the E-step. Rows are split into contiguous chunks whose
+// number depends only on N, K and D, never on GOMAXPROCS; each chunk sums in
+// row order into its own accumulator and the chunk sums are added in chunk
+// order, so results are bit-identical however many goroutines run.
+const (
+	minChunkRows = 2048
+	maxChunks    = 64
+	// maxAccumBytes bounds the memory of all chunk accumulators together.
+	maxAccumBytes = 64 << 20
+)
+
+// mahaCap bounds a squared Mahalanobis distance so that a log-density is
+// always finite (exp of it underflows to zero long before).
+const mahaCap = 1e300
+
+// accum holds one chunk's sufficient statistics, computed against the
+// current means: nk = Σ r w, sx = Σ r w (x−μ), sxx = Σ r w (x−μ)(x−μ)ᵀ
+// (packed lower triangle; one shared matrix for tied; squared deviations per
+// feature for diagonal and spherical), and ll = Σ w log p(x).
+type accum struct {
+	ll            float64
+	nk, sx, sxx   []float64
+	diff, lp      []float64 // scratch
+	lo, hi        int
+	sxxPerCompLen int
+}
+
+// pass is the reusable machinery of the E-step for one K.
+type pass struct {
+	p      *problem
+	k      int
+	chunks []accum
+	total  accum
+	rowLD  []float64 // per-row log mixture density (internal, unweighted)
+}
+
+func newPass(p *problem, k int) *pass {
+	d := p.d
+	s := p.cfg.structure
+	sxxLen := k * covLen(s, d)
+	per := covLen(s, d)
+	if s == mixture.Tied {
+		sxxLen = tri(d)
+		per = 0
+	}
+	accLen := k + k*d + sxxLen
+	rows := max(minChunkRows, (p.n+maxChunks-1)/maxChunks)
+	if budget := maxAccumBytes / (8 * accLen); budget >= 1 {
+		rows = max(rows, (p.n+budget-1)/budget)
+	} else {
+		rows = p.n
+	}
+	nc := (p.n + rows - 1) / rows
+	ps := &pass{p: p, k: k, chunks: make([]accum, nc), rowLD: make([]float64, p.n)}
+	mk := func(a *accum) {
+		a.nk = make([]float64, k)
+		a.sx = make([]float64, k*d)
+		a.sxx = make([]float64, sxxLen)
+		a.sxxPerCompLen = per
+	}
+	for c := range ps.chunks {
+		a := &ps.chunks[c]
+		mk(a)
+		a.diff = make([]float64, k*d)
+		a.lp = make([]float64, k)
+		a.lo = c * rows
+		a.hi = min(p.n, (c+1)*rows)
+	}
+	mk(&ps.total)
+	return ps
+}
+
+// run evaluates st on every row: per-row log-densities into rowLD and the
+// reduced statistics into ps.total.
+func (ps *pass) run(st *state) {
+	nc := len(ps.chunks)
+	workers := min(runtime.GOMAXPROCS(0), nc)
+	if workers <= 1 {
+		for c := range ps.chunks {
+			ps.chunk(st, &ps.chunks[c])
+		}
+	} else {
+		var next atomic.Int64
+		var wg sync.WaitGroup
+		for w := 0; w < workers; w++ {
+			wg.Add(1)
+			go func() {
+				defer wg.Done()
+				for {
+					c := int(next.Add(1) - 1)
+					if c >= nc {
+						return
+					}
+					ps.chunk(st, &ps.chunks[c])
+				}
+			}()
+		}
+		wg.Wait()
+	}
+	t := &ps.total
+	t.ll = 0
+	clear(t.nk)
+	clear(t.sx)
+	clear(t.sxx)
+	for c := range ps.chunks {
+		a := &ps.chunks[c]
+		t.ll += a.ll
+		addTo(t.nk, a.nk)
+		addTo(t.sx, a.sx)
+		addTo(t.sxx, a.sxx)
+	}
+}
+
+func addTo(dst, src []float64) {
+	src = src[:len(dst)]
+	for i, v := range src {
+		dst[i] += v
+	}
+}
+
+// chunk runs the fused E-step over one chunk of rows.
+func (ps *pass) chunk(st *state, a *accum) {
+	a.ll = 0
+	clear(a.nk)
+	clear(a.sx)
+	clear(a.sxx)
+	switch st.structure {
+	case mixture.Full, mixture.Tied:
+		ps.chunkFull(st, a)
+	default:
+		ps.chunkDiag(st, a)
+	}
+}
+
+// chunkFull is the E-step and statistics for full and tied covariances:
+// per row and component the whitened deviation z = U (x − μ) (U = L⁻¹,
+// packed, so each z_j is an independent dot product), then log-sum-exp over
+// components, then the responsibility-weighted moments.
+func (ps *pass) chunkFull(st *state, a *accum) {
+	p := ps.p
+	d, k := p.d, st.k
+	td := tri(d)
+	wstride := td // stride between whitening matrices
+	if st.structure == mixture.Tied {
+		wstride = 0
+	}
+	sstride := a.sxxPerCompLen
+	x, iw := p.x, p.iw
+	diff, lp := a.diff, a.lp[:k]
+	logConst := st.logConst[:k]
+	rowLD := ps.rowLD
+	guess := 0 // the previous row's best component is tried first
+	for i := a.lo; i < a.hi; i++ {
+		xi := x[i*d : (i+1)*d]
+		best := math.Inf(-1)
+		top := guess
+		for n := range lp {
+			c := n // order: guess, then the others by index
+			if n == 0 {
+				c = guess
+			} else if n <= guess {
+				c = n - 1
+			}
+			mu := st.mean[c*d : (c+1)*d]
+			U := st.white[c*wstride : c*wstride+td]
+			dk := diff[c*d : (c+1)*d]
+			mu = mu[:len(dk)]
+			xi := xi[:len(dk)]
+			for j := range dk {
+				dk[j] = xi[j] - mu[j]
+			}
+			// maha = |U dk|²; each row's dot product uses four partial sums
+			// (a fixed order, so deterministic) to shorten the dependency
+			// chain. maha only grows, so once logConst − maha/2 falls below
+			// the best term so far by more than negligibleShift the
+			// component's term is exactly zero whatever follows, and the
+			// rest of the product is skipped.
+			lc := logConst[c]
+			cut := 2 * (lc - best - negligibleShift)
+			var maha float64
+			off := 0
+			for j := range dk {
+				row := U[off : off+j+1]
+				dd := dk[:len(row)]
+				var s0, s1, s2, s3 float64
+				l := 0
+				for ; l+4 <= len(row); l += 4 {
+					r4 := row[l : l+4 : l+4]
+					d4 := dd[l : l+4 : l+4]
+					s0 += r4[0] * d4[0]
+					s1 += r4[1] * d4[1]
+					s2 += r4[2] * d4[2]
+					s3 += r4[3] * d4[3]
+				}
+				for ; l < len(row); l++ {
+					s0 += row[l] * dd[l]
+				}
+				z := (s0 + s1) + (s2 + s3)
+				maha += z * z
+				off += j + 1
+				if maha > cut {
+					break
+				}
+			}
+			if maha > cut {
+				lp[c] = math.Inf(-1)
+				continue
+			}
+			if !(maha <= mahaCap) {
+				maha = mahaCap
+			}
+			v := lc - 0.5*maha
+			lp[c] = v
+			if v > best {
+				best, top = v, c
+			}
+		}
+		guess = top
+		sum := expShift(lp, best)
+		lse := best + math.Log(sum)
+		rowLD[i] = lse
+		wi := 1.0
+		if iw != nil {
+			wi = iw[i]
+			if wi == 0 {
+				continue
+			}
+		}
+		a.ll += wi * lse
+		scale := wi / sum
+		for c, e := range lp {
+			r := e * scale
+			if r == 0 {
+				continue
+			}
+			a.nk[c] += r
+			dk := diff[c*d : (c+1)*d]
+			sx := a.sx[c*d : (c+1)*d]
+			S := a.sxx[c*sstride : c*sstride+td]
+			off := 0
+			for j := range sx {
+				rd := r * dk[j]
+				sx[j] += rd
+				row := S[off : off+j+1]
+				dd := dk[:len(row)]
+				for l, v := range dd {
+					row[l] += rd * v
+				}
+				off += j + 1
+			}
+		}
+	}
+}
+
+// negligibleShift is the log-ratio to a row's largest component term below
+// which a term is treated as exactly zero: e^-37 ≈ 8.5e-17 is under half a
+// unit in the last place of the sum (which is at least 1), so the term
+// could not change the row's log-density, and its responsibility is below
+// 1e-16. Treating it as zero skips its exponential and its share of the
+// moment sums, which is most of the work when components are well apart.
+const negligibleShift = -37
+
+// expShift replaces every lp[c] by exp(lp[c] − best), or by zero when that is
+// below e^negligibleShift, and returns their sum (at least 1).
+func expShift(lp []float64, best float64) float64 {
+	var sum float64
+	for c, v := range lp {
+		t := v - best
+		if t < negligibleShift {
+			lp[c] = 0
+			continue
+		}
+		e := math.Exp(t)
+		lp[c] = e
+		sum += e
+	}
+	return sum
+}
+
+// chunkDiag is chunkFull for diagonal and spherical covariances.
+func (ps *pass) chunkDiag(st *state, a *accum) {
+	p := ps.p
+	d, k := p.d, st.k
+	x, iw := p.x, p.iw
+	diff, lp := a.diff, a.lp
+	rowLD := ps.rowLD
+	for i := a.lo; i < a.hi; i++ {
+		xi := x[i*d : (i+1)*d]
+		best := math.Inf(-1)
+		for c := 0; c < k; c++ {
+			mu := st.mean[c*d : (c+1)*d]
+			inv := st.invd[c*d : (c+1)*d]
+			dk := diff[c*d : (c+1)*d]
+			var maha float64
+			for j := 0; j < d; j++ {
+				dj := xi[j] - mu[j]
+				dk[j] = dj
+				zj := dj * inv[j]
+				maha += zj * zj
+			}
+			if !(maha <= mahaCap) {
+				maha = mahaCap
+			}
+			v := st.logConst[c] - 0.5*maha
+			lp[c] = v
+			if v > best {
+				best = v
+			}
+		}
+		sum := expShift(lp, best)
+		lse := best + math.Log(sum)
+		rowLD[i] = lse
+		wi := 1.0
+		if iw != nil {
+			wi = iw[i]
+			if wi == 0 {
+				continue
+			}
+		}
+		a.ll += wi * lse
+		scale := wi / sum
+		for c := 0; c < k; c++ {
+			r := lp[c] * scale
+			if r == 0 {
+				continue
+			}
+			a.nk[c] += r
+			dk := diff[c*d : (c+1)*d]
+			sx := a.sx[c*d : (c+1)*d]
+			S := a.sxx[c*d : (c+1)*d]
+			for j, dj := range dk {
+				rd := r * dj
+				sx[j] += rd
+				S[j] += rd * dj
+			}
+		}
+	}
+}
