@@ -27,7 +27,8 @@ type FitOptions struct {
 	MaxComponents int
 	// Criterion chooses K in a range fit (BIC when unset).
 	Criterion mixdv1.Criterion
-	// Family of the components (Gaussian when unset).
+	// Family of the components; unset means the fitter's default (em:
+	// gaussian, tmix: student_t, vb: its served_model option).
 	Family mixdv1.Family
 	// Structure of the covariance matrices (full when unset).
 	Structure mixdv1.CovarianceStructure

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 
 	mixdv1 "github.com/mixd-dev/mixd/proto/mixd/v1"
 )
@@ -15,6 +16,9 @@ type ScoreOptions struct {
 	Version int64
 	// ComponentLogDensities asks for each component's log-density too.
 	ComponentLogDensities bool
+	// OutlierLevel is the level of the outlier rule for Student-t models;
+	// 0 means the level stored with the model.
+	OutlierLevel float64
 }
 
 // ScoreResult holds per-row scores.
@@ -26,11 +30,19 @@ type ScoreResult struct {
 	LogDensities []float64
 	// Percentiles holds each row's percentile in [0, 100] among the training
 	// rows' log-densities: 0.1 means rarer than 99.9% of the training rows.
+	// It is NaN for models stored without training quantiles.
 	Percentiles []float64
 	// ComponentLogDensities is rows×K when asked for (without the weights).
 	ComponentLogDensities Matrix
 	// LogLikelihood is the sum of the log-densities.
 	LogLikelihood float64
+	// OutlierStatistics and Outliers are set for Student-t models only: each
+	// row's squared Mahalanobis distance to its most probable component over
+	// the dimension, and whether its F(dimension, nu) distribution function
+	// exceeds the outlier level. A flag marks statistical rarity under the
+	// model, not a diagnosis.
+	OutlierStatistics []float64
+	Outliers          []bool
 }
 
 // Score returns the log-density and training percentile of every row.
@@ -59,12 +71,13 @@ func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts Scor
 			Rows:                         rows.ToProto(),
 			IncludeComponentLogDensities: opts.ComponentLogDensities,
 			ResponseEncoding:             mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN,
+			OutlierLevel:                 opts.OutlierLevel,
 		})
 		if err != nil {
 			return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
 		}
 		res := &ScoreResult{Model: resp.GetModel(), Version: resp.GetVersion(), LogLikelihood: resp.GetLogLikelihood()}
-		if err := res.add(rows.Rows, resp.GetLogDensities(), resp.GetPercentiles(), resp.GetComponentLogDensities(), opts.ComponentLogDensities); err != nil {
+		if err := res.add(rows.Rows, resp, opts.ComponentLogDensities); err != nil {
 			return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
 		}
 		return res, nil
@@ -88,6 +101,7 @@ func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts Scor
 				req.Version = opts.Version
 				req.IncludeComponentLogDensities = opts.ComponentLogDensities
 				req.ResponseEncoding = mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN
+				req.OutlierLevel = opts.OutlierLevel
 			}
 			return stream.Send(req)
 		}, stream.CloseSend)
@@ -114,28 +128,58 @@ func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts Scor
 			res.Model, res.Version = resp.GetModel(), resp.GetVersion()
 		}
 		res.LogLikelihood += resp.GetLogLikelihood()
-		if err := res.add(chunks[i], resp.GetLogDensities(), resp.GetPercentiles(), resp.GetComponentLogDensities(), opts.ComponentLogDensities); err != nil {
+		if err := res.add(chunks[i], scoreColumns(resp), opts.ComponentLogDensities); err != nil {
 			return nil, fmt.Errorf("mixdclient: score %s: chunk %d: %w", model, i, err)
 		}
 	}
 }
 
-// add appends one response's columns to r.
-func (r *ScoreResult) add(n int, ld, pct, comp *mixdv1.Matrix, wantComp bool) error {
-	l, err := column(ld, "log_densities", n)
+// scoreResponse is what ScoreResponse and ScoreStreamResponse share.
+type scoreResponse interface {
+	GetLogDensities() *mixdv1.Matrix
+	GetPercentiles() *mixdv1.Matrix
+	GetComponentLogDensities() *mixdv1.Matrix
+	GetOutlierStatistics() *mixdv1.Matrix
+	GetOutliers() []bool
+}
+
+// scoreColumns adapts a stream response to scoreResponse.
+func scoreColumns(r *mixdv1.ScoreStreamResponse) scoreResponse { return r }
+
+// add appends one response's columns (n rows) to r.
+func (r *ScoreResult) add(n int, resp scoreResponse, wantComp bool) error {
+	l, err := column(resp.GetLogDensities(), "log_densities", n)
 	if err != nil {
 		return err
 	}
-	p, err := column(pct, "percentiles", n)
-	if err != nil {
+	var p []float64
+	if resp.GetPercentiles() == nil {
+		// A model without training quantiles (imported without a fit
+		// report) has no percentiles: NaN marks them as missing.
+		p = make([]float64, n)
+		for i := range p {
+			p[i] = math.NaN()
+		}
+	} else if p, err = column(resp.GetPercentiles(), "percentiles", n); err != nil {
 		return err
 	}
 	r.LogDensities = append(r.LogDensities, l...)
 	r.Percentiles = append(r.Percentiles, p...)
 	if wantComp {
-		if err := appendRows(&r.ComponentLogDensities, comp, "component_log_densities", n); err != nil {
+		if err := appendRows(&r.ComponentLogDensities, resp.GetComponentLogDensities(), "component_log_densities", n); err != nil {
 			return err
 		}
+	}
+	if resp.GetOutlierStatistics() != nil {
+		st, err := column(resp.GetOutlierStatistics(), "outlier_statistics", n)
+		if err != nil {
+			return err
+		}
+		if len(resp.GetOutliers()) != n {
+			return fmt.Errorf("mixdclient: outliers has %d values, want %d", len(resp.GetOutliers()), n)
+		}
+		r.OutlierStatistics = append(r.OutlierStatistics, st...)
+		r.Outliers = append(r.Outliers, resp.GetOutliers()...)
 	}
 	return nil
 }

@@ -30,7 +30,10 @@
 //	job JOB [--format text|json]       one fit job ("fitJobs/ID" or "ID")
 //	watch JOB [--quiet]                follow a job; prints the model when it succeeds
 //	cancel JOB                         cancel a running job
-//	score --model M [flags] FILE.csv   columns row, log_density, percentile
+//	score --model M [flags] FILE.csv   columns row, log_density, percentile (Student-t
+//	                                   models add outlier_statistic, outlier)
+//	    --outlier-level L              level of the outlier rule (default: the model's)
+//	    --outliers                     only rows flagged as outliers (Student-t models)
 //	    --version N  --format csv|jsonl  --with-input  --columns a,b,c
 //	    --components                   add component_K_log_density columns
 //	    --below P                      only rows whose percentile is below P

@@ -223,20 +223,40 @@ func scoreCommand(fs *flag.FlagSet) runner {
 	r.define(fs)
 	comps := fs.Bool("components", false, "add each component's log-density (columns component_K_log_density)")
 	below := fs.Float64("below", 0, "print only rows whose percentile is below this `percent` (e.g. 1 = rarer than 99% of the training rows)")
-	return func(a *app, pos []string) error { return a.score(r, *comps, *below, pos[0]) }
+	level := fs.Float64("outlier-level", 0, "Student-t models: `level` of the outlier rule, in (0, 1) (default: the level stored with the model)")
+	onlyOutliers := fs.Bool("outliers", false, "Student-t models: print only rows flagged as outliers")
+	return func(a *app, pos []string) error {
+		return a.score(r, scoreChoices{comps: *comps, below: *below, level: *level, onlyOutliers: *onlyOutliers}, pos[0])
+	}
 }
 
-func (a *app) score(r *rowFlags, comps bool, below float64, path string) error {
+// scoreChoices are the score command's own flags.
+type scoreChoices struct {
+	comps        bool
+	below        float64
+	level        float64
+	onlyOutliers bool
+}
+
+func (a *app) score(r *rowFlags, sc scoreChoices, path string) error {
+	comps, below := sc.comps, sc.below
 	if below < 0 || below > 100 {
 		return usagef("score: --below %v: want a percent in (0, 100]", below)
+	}
+	if sc.level < 0 || sc.level >= 1 {
+		return usagef("score: --outlier-level %v: want a level in (0, 1)", sc.level)
 	}
 	c, m, t, err := a.load("score", r, path)
 	if err != nil {
 		return err
 	}
-	res, err := c.Score(a.ctx, m.GetName(), t.data, mixdclient.ScoreOptions{Version: m.GetVersion(), ComponentLogDensities: comps})
+	res, err := c.Score(a.ctx, m.GetName(), t.data, mixdclient.ScoreOptions{Version: m.GetVersion(), ComponentLogDensities: comps, OutlierLevel: sc.level})
 	if err != nil {
 		return err
+	}
+	robust := res.Outliers != nil
+	if sc.onlyOutliers && !robust {
+		return usagef("score: --outliers: model %s is not a Student-t model, so it flags no outliers (use --below for rare rows)", m.GetName())
 	}
 	k := len(m.GetParameters().GetComponents())
 	keys := []string{"row"}
@@ -249,6 +269,10 @@ func (a *app) score(r *rowFlags, comps bool, below float64, path string) error {
 	}
 	keys = append(keys, "log_density", "percentile")
 	header = append(header, "log_density", "percentile")
+	if robust {
+		keys = append(keys, "outlier_statistic", "outlier")
+		header = append(header, "outlier_statistic", "outlier")
+	}
 	if comps {
 		keys = append(keys, "component_log_densities")
 		for j := range k {
@@ -260,9 +284,15 @@ func (a *app) score(r *rowFlags, comps bool, below float64, path string) error {
 		if below > 0 && !(res.Percentiles[i] < below) {
 			continue
 		}
+		if sc.onlyOutliers && !res.Outliers[i] {
+			continue
+		}
 		cells := []cell{icell(int64(i + 1))}
 		cells = append(cells, inputCells(r, t, i)...)
 		cells = append(cells, fcell(res.LogDensities[i]), fcell(res.Percentiles[i]))
+		if robust {
+			cells = append(cells, fcell(res.OutlierStatistics[i]), bcell(res.Outliers[i]))
+		}
 		if comps {
 			cells = append(cells, lcell(res.ComponentLogDensities.Row(i)))
 		}

@@ -1183,3 +1183,104 @@ func TestLargeFit(t *testing.T) {
 	}
 	checkClose(t, "first 1000 log-densities", sr.LogDensities[:1000], want)
 }
+
+// TestOtherFittersEndToEnd fits the pump-station data by name with the
+// variational and Student-t fitters over RPC (each runs as its own plugin
+// process) and checks that the daemon serves the result exactly as the
+// in-process model computes it. For the t mixture, Score's outlier flags
+// follow the model's rule, and the training rows it flags are the 15 fault
+// rows of testdata/pumps/labels.csv (the generator's own labels).
+func TestOtherFittersEndToEnd(t *testing.T) {
+	d := startDaemon(t, t.TempDir(), false)
+	c := d.client()
+	ctx := context.Background()
+	data, header := pumps(t)
+	faults := faultRows(t)
+
+	for _, tc := range []struct {
+		fitter     string
+		components int
+		family     mixture.Family
+	}{
+		{"vb", 6, mixture.StudentT}, // unset family: vb serves its predictive Student-t mixture
+		{"tmix", 3, mixture.StudentT},
+	} {
+		t.Run(tc.fitter, func(t *testing.T) {
+			model, err := c.Fit(ctx, "pumps-"+tc.fitter, data,
+				mixdclient.FitOptions{Fitter: tc.fitter, Components: tc.components, Seed: 7, FeatureNames: header}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if got := model.GetReport().GetFitter(); got != tc.fitter {
+				t.Errorf("report fitter %q, want %q", got, tc.fitter)
+			}
+			mm := inProcess(t, model)
+			if mm.Family() != tc.family {
+				t.Fatalf("served family %s, want %s", mm.Family(), tc.family)
+			}
+			k := mm.K()
+			wantLD := make([]float64, data.Rows)
+			wantPost := make([]float64, data.Rows*k)
+			if err := mm.LogDensity(data.Values, wantLD); err != nil {
+				t.Fatal(err)
+			}
+			if err := mm.Posteriors(data.Values, nil, wantPost, nil); err != nil {
+				t.Fatal(err)
+			}
+			sc, err := c.Score(ctx, model.GetName(), data, mixdclient.ScoreOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			checkClose(t, "log-density", sc.LogDensities, wantLD)
+			cl, err := c.Classify(ctx, model.GetName(), data, mixdclient.ClassifyOptions{Posteriors: true})
+			if err != nil {
+				t.Fatal(err)
+			}
+			checkClose(t, "posteriors", cl.Posteriors.Values, wantPost)
+			smp, err := c.Sample(ctx, model.GetName(), 500, mixdclient.SampleOptions{Seed: 11})
+			if err != nil {
+				t.Fatal(err)
+			}
+			wantX, wantLabels := mm.Sample(500, 11)
+			checkClose(t, "sample", smp.Rows.Values, wantX)
+			if !slices.Equal(smp.Components, wantLabels) {
+				t.Error("sampled components differ from the in-process sampler's")
+			}
+
+			// Student-t models: the outlier statistic and flag of every row.
+			level := model.GetReport().GetOutlierLevel()
+			if level == 0 {
+				level = mixture.DefaultOutlierLevel
+			}
+			wantStat := make([]float64, data.Rows)
+			wantFlag := make([]bool, data.Rows)
+			if err := mm.Outliers(data.Values, level, wantStat, wantFlag); err != nil {
+				t.Fatal(err)
+			}
+			checkClose(t, "outlier statistic", sc.OutlierStatistics, wantStat)
+			if !slices.Equal(sc.Outliers, wantFlag) {
+				t.Fatal("outlier flags differ from the in-process rule")
+			}
+			if tc.fitter != "tmix" {
+				return
+			}
+			var flagged []int
+			for i, f := range sc.Outliers {
+				if f {
+					flagged = append(flagged, i+1)
+				}
+			}
+			if int64(len(flagged)) != model.GetReport().GetFlaggedRows() {
+				t.Errorf("Score flags %d training rows, the fit report %d", len(flagged), model.GetReport().GetFlaggedRows())
+			}
+			for _, row := range flagged {
+				if _, ok := faults[row]; !ok {
+					t.Errorf("row %d flagged but is not a fault row", row)
+				}
+			}
+			if len(flagged) != len(faults) {
+				t.Errorf("%d rows flagged, want the %d fault rows", len(flagged), len(faults))
+			}
+		})
+	}
+}
