@@ -193,6 +193,12 @@ func (s *Server) checkSpec(spec *mixdv1.FitSpec) (*fitPlan, error) {
 		if st.Family != 0 && p.Family != st.Family {
 			return nil, invalidf("spec.start_parameters.family is %s but the fit asks for %s", p.Family, st.Family)
 		}
+		// An unset structure follows the start's; a set one must agree with it.
+		if spec.GetCovarianceStructure() == mixdv1.CovarianceStructure_COVARIANCE_STRUCTURE_UNSPECIFIED {
+			st.Structure = p.Structure
+		} else if p.Structure != st.Structure {
+			return nil, invalidf("spec.start_parameters.covariance_structure is %s but spec.covariance_structure is %s", p.Structure, st.Structure)
+		}
 		st.Start = &p
 		plan.startDim = p.Dim
 	}

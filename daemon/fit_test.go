@@ -175,8 +175,7 @@ func TestFitWithWeightsLabelsAndStart(t *testing.T) {
 	ridge := 0.5
 	sp := &mixdv1.FitSpec{
 		Model: "w", Fitter: "em", StartParameters: refModel("").Parameters, Ridge: &ridge,
-		CovarianceStructure: mixdv1.CovarianceStructure_COVARIANCE_STRUCTURE_TIED,
-		Criterion:           mixdv1.Criterion_CRITERION_AIC, MaxIterations: -1, Tolerance: 1e-6, Restarts: 3,
+		Criterion: mixdv1.Criterion_CRITERION_AIC, MaxIterations: -1, Tolerance: 1e-6, Restarts: 3,
 		Options: map[string]string{"x": "1"},
 	}
 	data := pumpRows(4, 2)
@@ -190,7 +189,9 @@ func TestFitWithWeightsLabelsAndStart(t *testing.T) {
 		t.Fatal(err)
 	}
 	if seen.Components != 2 || seen.Start == nil || seen.Ridge != 0.5 || seen.Criterion != fitters.AIC ||
-		seen.MaxIterations != -1 || seen.Tolerance != 1e-6 || seen.Restarts != 3 || seen.Options["x"] != "1" || seen.Seed != 0 {
+		seen.MaxIterations != -1 || seen.Tolerance != 1e-6 || seen.Restarts != 3 || seen.Options["x"] != "1" || seen.Seed != 0 ||
+		seen.Structure.String() != "full" { // an unset structure follows the start's
+
 		t.Fatalf("settings %+v", seen)
 	}
 	if fmt.Sprint(seen.Labels) != "[0 1 1 0]" || fmt.Sprint(seenData.Weights) != "[1 2 0 3]" || seenData.Rows != 4 || seenData.Cols != 2 {
@@ -260,6 +261,9 @@ func TestFitValidation(t *testing.T) {
 		{"start with range", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) {
 			s.MaxComponents, s.StartParameters = 3, refModel("").Parameters
 		})}}, codes.InvalidArgument, "spec.start_parameters cannot be combined with a component range"},
+		{"start structure", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) {
+			s.StartParameters, s.CovarianceStructure = refModel("").Parameters, mixdv1.CovarianceStructure_COVARIANCE_STRUCTURE_DIAGONAL
+		})}}, codes.InvalidArgument, "spec.start_parameters.covariance_structure is full but spec.covariance_structure is diagonal"},
 		{"start count", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.Components, s.StartParameters = 3, refModel("").Parameters })}}, codes.InvalidArgument, "spec.start_parameters has 2 components but spec.components is 3"},
 		{"start dimension", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.StartParameters = refModel("").Parameters }),
 			Chunk: &mixdv1.FitChunk{Data: &mixdv1.Matrix{Rows: 1, Cols: 3, Values: []float64{1, 2, 3}}}}}, codes.InvalidArgument, "spec.start_parameters.dimension is 2 but messages[0].chunk.data has 3 columns"},
