@@ -75,7 +75,9 @@ type flight struct {
 // load. It also remembers the newest version of each model it has seen, so
 // that "version 0" requests do not read the store; the daemon keeps that
 // pointer right by calling add after every store.Create and forget after
-// every store.Delete (the daemon assumes it is the only writer of its store).
+// every store.Delete. When other daemons write the same store (replica
+// mode, replica_cache.go), their changes arrive as notifications, and
+// entries are confirmed with the store again while notifications are down.
 type modelCache struct {
 	load  func(ctx context.Context, name string, version int64) (*mixdv1.Model, error)
 	build func(*mixdv1.Model) (*mixture.Model, error)
@@ -89,6 +91,12 @@ type modelCache struct {
 	flights map[cacheKey]*flight
 	epoch   uint64 // bumped by add and forget; stale loads do not insert
 	loads   int    // number of store loads started (for tests and metrics)
+	hits    uint64 // gets answered from the cache (for metrics)
+	misses  uint64 // gets that waited for a load (for metrics)
+
+	// Replica mode (replica_cache.go); checked is nil outside it.
+	recheck time.Duration          // > 0: entries confirmed longer ago are confirmed again on use
+	checked map[cacheKey]time.Time // last confirmation by the store; version 0: the newest pointer
 }
 
 // newModelCache returns an empty cache with the given byte budget.
@@ -109,16 +117,26 @@ func newModelCache(budget int64, load func(context.Context, string, int64) (*mix
 func (c *modelCache) get(ctx context.Context, name string, version int64) (*loadedModel, error) {
 	c.mu.Lock()
 	v := version
+	var fallback *loadedModel // replica mode: a cached answer due for confirmation
 	if v == 0 {
 		v = c.newest[name]
+		if v != 0 && c.dueLocked(cacheKey{name, 0}) {
+			fallback, v = c.itemLocked(name, v), 0
+		}
 	}
 	if v != 0 {
 		if e, ok := c.items[cacheKey{name, v}]; ok {
-			c.lru.MoveToFront(e)
-			c.mu.Unlock()
-			return e.Value.(*loadedModel), nil
+			if version != 0 && c.dueLocked(cacheKey{name, v}) {
+				fallback = e.Value.(*loadedModel)
+			} else {
+				c.lru.MoveToFront(e)
+				c.hits++
+				c.mu.Unlock()
+				return e.Value.(*loadedModel), nil
+			}
 		}
 	}
+	c.misses++
 	key := cacheKey{name, v}
 	f, ok := c.flights[key]
 	if !ok {
@@ -128,6 +146,9 @@ func (c *modelCache) get(ctx context.Context, name string, version int64) (*load
 		go c.fill(key, f, c.epoch)
 	}
 	c.mu.Unlock()
+	if fallback != nil {
+		return waitOrFallback(ctx, f, fallback)
+	}
 	select {
 	case <-f.done:
 		return f.val, f.err
@@ -143,7 +164,9 @@ func (c *modelCache) fill(key cacheKey, f *flight, epoch uint64) {
 	var lm *loadedModel
 	pb, err := c.load(ctx, key.name, key.version)
 	if err == nil {
-		lm, err = c.prepare(pb)
+		if lm = c.reuse(pb); lm == nil {
+			lm, err = c.prepare(pb)
+		}
 	}
 	c.mu.Lock()
 	delete(c.flights, key)
@@ -153,6 +176,7 @@ func (c *modelCache) fill(key cacheKey, f *flight, epoch uint64) {
 			c.newest[key.name] = lm.version()
 		}
 	}
+	c.confirmLocked(key, lm, err, epoch)
 	c.mu.Unlock()
 	f.val, f.err = lm, err
 	close(f.done)
@@ -178,13 +202,18 @@ func newLoaded(pb *mixdv1.Model, m *mixture.Model) *loadedModel {
 
 // add puts a model that was just stored into the cache and makes it the
 // newest version of its name when it is newer than what the cache knew.
+// In replica mode an unknown newest version stays unknown: another daemon
+// may have written a newer one meanwhile.
 func (c *modelCache) add(lm *loadedModel) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	c.epoch++
 	c.insertLocked(lm)
-	if lm.version() > c.newest[lm.name()] {
+	if cur := c.newest[lm.name()]; lm.version() > cur && (cur != 0 || c.checked == nil) {
 		c.newest[lm.name()] = lm.version()
+	}
+	if c.checked != nil {
+		c.checked[cacheKey{lm.name(), lm.version()}] = time.Now()
 	}
 }
 
@@ -195,6 +224,7 @@ func (c *modelCache) forget(name string, version int64) {
 	defer c.mu.Unlock()
 	c.epoch++
 	delete(c.newest, name)
+	delete(c.checked, cacheKey{name, 0})
 	for k, e := range c.items {
 		if k.name == name && (version == 0 || k.version == version) {
 			c.removeLocked(e)
@@ -222,6 +252,7 @@ func (c *modelCache) insertLocked(lm *loadedModel) {
 func (c *modelCache) removeLocked(e *list.Element) {
 	lm := c.lru.Remove(e).(*loadedModel)
 	delete(c.items, cacheKey{lm.name(), lm.version()})
+	delete(c.checked, cacheKey{lm.name(), lm.version()})
 	c.used -= lm.size
 }
 
@@ -231,6 +262,13 @@ func (c *modelCache) stats() (models int, bytes int64, loads int) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	return len(c.items), c.used, c.loads
+}
+
+// counters returns the cache's hit and miss counts and its byte budget.
+func (c *modelCache) counters() (hits, misses uint64, budget int64) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return c.hits, c.misses, c.budget
 }
 
 // validQuantiles checks stored training quantiles: at least two levels,

@@ -19,8 +19,10 @@
 // (at most ten events a second, the latest always sent before the final
 // state) and the stored model; when the call ends first, the fit is
 // cancelled. A CreateFitJob job runs on whether or not anybody watches.
-// Jobs live in this process's memory only: every active job and the
-// JobHistory most recent finished ones.
+// Jobs live in this process's memory: every active job and the
+// JobHistory most recent finished ones. With a store shared by several
+// daemons (PostgreSQL), jobs are also written to the store's job table, so
+// that every daemon sees and can cancel them (replica.go).
 //
 // A successful fit computes the log-density of every training row under
 // the fitted model and stores its quantiles at QuantileLevels with the

@@ -21,6 +21,8 @@ import (
 //	store.ErrInvalid (e.g. a bad page token)           INVALID_ARGUMENT
 //	store.ErrCorrupt, stored model that fails to build DATA_LOSS
 //	store.ErrClosed (shutting down)                    UNAVAILABLE
+//	store.ErrUnavailable (database unreachable)        UNAVAILABLE
+//	store.ErrJobEnded (shared job already ended)       FAILED_PRECONDITION
 //	fitterhost.ErrUnknownFitter                        INVALID_ARGUMENT (the spec names a fitter that is not there)
 //	fitterhost.ErrUnavailable, fitters.ErrTransport    UNAVAILABLE (the fitter process crashed or went away; retryable)
 //	fitter error codes (fitters.CodeOf)                the matching code: INVALID_ARGUMENT, FAILED_PRECONDITION,
@@ -47,6 +49,10 @@ func classify(err error) (codes.Code, string) {
 		return codes.NotFound, err.Error()
 	case errors.Is(err, store.ErrCorrupt), errors.Is(err, errUnservable):
 		return codes.DataLoss, err.Error()
+	case errors.Is(err, store.ErrUnavailable):
+		return codes.Unavailable, err.Error() + " (the model store cannot be reached; retryable)"
+	case errors.Is(err, store.ErrJobEnded):
+		return codes.FailedPrecondition, err.Error()
 	case errors.Is(err, store.ErrClosed):
 		return codes.Unavailable, err.Error() + " (the daemon is shutting down; retryable)"
 	case errors.Is(err, store.ErrInvalid):

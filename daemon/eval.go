@@ -56,8 +56,9 @@ func outlierLevel(field string, requested float64, lm *loadedModel) (float64, er
 // score evaluates x under lm.
 //
 // For Student-t models it also returns each row's outlier statistic and flag
-// by the rule the fitter used (mixture.Model.Outliers) at level.
-func (s *Server) score(lm *loadedModel, x matrix, withComponents bool, le bool, level float64, instead string) (scored, error) {
+// by the rule the fitter used (mixture.Model.Outliers) at level. A non-nil
+// mask marks unobserved values (see scoreMasked).
+func (s *Server) score(lm *loadedModel, x matrix, mask []bool, withComponents bool, le bool, level float64, instead string) (scored, error) {
 	k := lm.m.K()
 	robust := lm.m.Family() == mixture.StudentT
 	bytes := int64(x.rows) * 16
@@ -69,6 +70,9 @@ func (s *Server) score(lm *loadedModel, x matrix, withComponents bool, le bool, 
 	}
 	if err := checkResponseSize(bytes, s.limits.MaxMessageBytes, fmt.Sprintf("the scores of %d rows", x.rows), instead); err != nil {
 		return scored{}, err
+	}
+	if mask != nil {
+		return s.scoreMasked(lm, x, mask, withComponents, le, level)
 	}
 	var out scored
 	ld := make([]float64, x.rows)
@@ -122,6 +126,10 @@ func (s *Server) Score(ctx context.Context, req *mixdv1.ScoreRequest) (*mixdv1.S
 	if err != nil {
 		return nil, err
 	}
+	mask, err := decodeMask("observed_mask", req.GetObservedMask(), x)
+	if err != nil {
+		return nil, err
+	}
 	le, err := responseEncoding("response_encoding", req.GetResponseEncoding(), x.littleEndian)
 	if err != nil {
 		return nil, err
@@ -130,7 +138,7 @@ func (s *Server) Score(ctx context.Context, req *mixdv1.ScoreRequest) (*mixdv1.S
 	if err != nil {
 		return nil, err
 	}
-	sc, err := s.score(lm, x, req.GetIncludeComponentLogDensities(), le, level, "send fewer rows per request or use ScoreStream")
+	sc, err := s.score(lm, x, mask, req.GetIncludeComponentLogDensities(), le, level, "send fewer rows per request or use ScoreStream")
 	if err != nil {
 		return nil, err
 	}
@@ -230,7 +238,11 @@ func (s *Server) ScoreStream(stream grpc.BidiStreamingServer[mixdv1.ScoreStreamR
 		if err != nil {
 			return err
 		}
-		sc, err := s.score(sm.lm, x, withComponents, sm.encoding(x.littleEndian), level, "send fewer rows per message")
+		mask, err := decodeMask(fmt.Sprintf("messages[%d].observed_mask", msg), req.GetObservedMask(), x)
+		if err != nil {
+			return err
+		}
+		sc, err := s.score(sm.lm, x, mask, withComponents, sm.encoding(x.littleEndian), level, "send fewer rows per message")
 		if err != nil {
 			return err
 		}
@@ -259,8 +271,9 @@ func checkMinPosterior(field string, v float64) error {
 	return nil
 }
 
-// classify assigns the rows of x to components of lm.
-func (s *Server) classify(lm *loadedModel, x matrix, minPost float64, withPost, le bool, instead string) (classified, error) {
+// classify assigns the rows of x to components of lm. A non-nil mask marks
+// unobserved values (see classifyMasked).
+func (s *Server) classify(lm *loadedModel, x matrix, mask []bool, minPost float64, withPost, le bool, instead string) (classified, error) {
 	k := lm.m.K()
 	bytes := int64(x.rows) * 14
 	if withPost {
@@ -268,6 +281,9 @@ func (s *Server) classify(lm *loadedModel, x matrix, minPost float64, withPost, 
 	}
 	if err := checkResponseSize(bytes, s.limits.MaxMessageBytes, fmt.Sprintf("the assignments of %d rows", x.rows), instead); err != nil {
 		return classified{}, err
+	}
+	if mask != nil {
+		return s.classifyMasked(lm, x, mask, minPost, withPost, le)
 	}
 	labels := make([]int, x.rows)
 	maxPost := make([]float64, x.rows)
@@ -311,11 +327,15 @@ func (s *Server) Classify(ctx context.Context, req *mixdv1.ClassifyRequest) (*mi
 	if err != nil {
 		return nil, err
 	}
+	mask, err := decodeMask("observed_mask", req.GetObservedMask(), x)
+	if err != nil {
+		return nil, err
+	}
 	le, err := responseEncoding("response_encoding", req.GetResponseEncoding(), x.littleEndian)
 	if err != nil {
 		return nil, err
 	}
-	c, err := s.classify(lm, x, req.GetMinPosterior(), req.GetIncludePosteriors(), le, "send fewer rows per request or use ClassifyStream")
+	c, err := s.classify(lm, x, mask, req.GetMinPosterior(), req.GetIncludePosteriors(), le, "send fewer rows per request or use ClassifyStream")
 	if err != nil {
 		return nil, err
 	}
@@ -354,7 +374,11 @@ func (s *Server) ClassifyStream(stream grpc.BidiStreamingServer[mixdv1.ClassifyS
 		if err != nil {
 			return err
 		}
-		c, err := s.classify(sm.lm, x, minPost, withPost, sm.encoding(x.littleEndian), "send fewer rows per message")
+		mask, err := decodeMask(fmt.Sprintf("messages[%d].observed_mask", msg), req.GetObservedMask(), x)
+		if err != nil {
+			return err
+		}
+		c, err := s.classify(sm.lm, x, mask, minPost, withPost, sm.encoding(x.littleEndian), "send fewer rows per message")
 		if err != nil {
 			return err
 		}

@@ -83,38 +83,38 @@ func (s *Server) checkSpec(spec *mixdv1.FitSpec) (*fitPlan, error) {
 	}
 
 	// Component counts.
-	k, kmin, kmax := int64(spec.GetComponents()), int64(spec.GetMinComponents()), int64(spec.GetMaxComponents())
+	k, kmin, kmax := int64(spec.GetComponents()), int64(spec.GetComponentsMin()), int64(spec.GetComponentsMax())
 	switch {
 	case k < 0:
 		return nil, invalidf("spec.components is %d, must not be negative", k)
 	case kmin < 0:
-		return nil, invalidf("spec.min_components is %d, must not be negative", kmin)
+		return nil, invalidf("spec.components_min is %d, must not be negative", kmin)
 	case kmax < 0:
-		return nil, invalidf("spec.max_components is %d, must not be negative", kmax)
+		return nil, invalidf("spec.components_max is %d, must not be negative", kmax)
 	}
 	if kmax > 0 {
 		if kmin == 0 {
 			kmin = 1
 		}
 		if kmin > kmax {
-			return nil, invalidf("spec.min_components (%d) is greater than spec.max_components (%d)", kmin, kmax)
+			return nil, invalidf("spec.components_min (%d) is greater than spec.components_max (%d)", kmin, kmax)
 		}
 		if kmax > lim.MaxComponents {
-			return nil, exhaustedf("spec.max_components is %d, above the limit of %d (mixd serve --max-components)", kmax, lim.MaxComponents)
+			return nil, exhaustedf("spec.components_max is %d, above the limit of %d (mixd serve --max-components)", kmax, lim.MaxComponents)
 		}
 		if spec.GetStartParameters() != nil {
-			return nil, invalidf("spec.start_parameters cannot be combined with a component range (spec.max_components > 0)")
+			return nil, invalidf("spec.start_parameters cannot be combined with a component range (spec.components_max > 0)")
 		}
 		st.MinComponents, st.MaxComponents = int(kmin), int(kmax)
 	} else {
 		if kmin > 0 {
-			return nil, invalidf("spec.min_components is %d but spec.max_components is 0; set both for a range, or set spec.components", kmin)
+			return nil, invalidf("spec.components_min is %d but spec.components_max is 0; set both for a range, or set spec.components", kmin)
 		}
 		if sp := spec.GetStartParameters(); k == 0 && sp != nil {
 			k = int64(len(sp.GetComponents()))
 		}
 		if k == 0 {
-			return nil, invalidf("spec.components is 0; set the number of components (or a range with spec.max_components)")
+			return nil, invalidf("spec.components is 0; set the number of components (or a range with spec.components_max)")
 		}
 		if k > lim.MaxComponents {
 			return nil, exhaustedf("spec.components is %d, above the limit of %d (mixd serve --max-components)", k, lim.MaxComponents)
@@ -265,7 +265,7 @@ func (u *uploader) add(msg int, c *mixdv1.FitChunk) error {
 			return invalidf("spec.start_parameters.dimension is %d but %s has %d columns", d, field+".data", u.cols)
 		}
 		if u.hasLabels && u.plan.labelBound == 0 {
-			return invalidf("%s.start_labels cannot be combined with a component range (spec.max_components > 0)", field)
+			return invalidf("%s.start_labels cannot be combined with a component range (spec.components_max > 0)", field)
 		}
 		if e := u.plan.expectedRows; e > 0 {
 			u.values = make([]float64, 0, min(e*int64(u.cols), u.lim.MaxFitValues))
@@ -285,6 +285,8 @@ func (u *uploader) add(msg int, c *mixdv1.FitChunk) error {
 		return exhaustedf("%s: the fit would have %d×%d = %d training values, above the limit of %d (mixd serve --max-fit-values)", field, n, u.cols, n*int64(u.cols), u.lim.MaxFitValues)
 	} else if e := u.plan.expectedRows; e > 0 && n > e {
 		return invalidf("%s: %d rows have arrived, more than spec.expected_rows = %d", field, n, e)
+	} else if err := u.checkMemory(field, n); err != nil {
+		return err
 	}
 
 	switch w := c.GetRowWeights(); {
@@ -368,6 +370,9 @@ func startUpload[M fitMessage](s *Server, recv func() (M, error)) (*job, *fitPla
 	}
 	ctx, cancel := context.WithCancelCause(s.baseCtx)
 	j, err := s.jobs.create(plan.model, plan.fitter, cancel)
+	if err == nil {
+		err = s.replica.jobCreated(j) // the shared job table in replica mode (replica.go)
+	}
 	if err != nil {
 		cancel(nil)
 		return nil, nil, nil, nil, err
@@ -606,6 +611,9 @@ func (s *Server) storeResult(ctx context.Context, j *job, plan *fitPlan, res *fi
 	// reported as stored.
 	stored, err := s.store.Create(context.WithoutCancel(ctx), pb)
 	if err != nil {
+		if storeUnavailable(err) {
+			return fmt.Errorf("store the fitted model %s: %w", plan.model, err)
+		}
 		return fmt.Errorf("store the fitted model %s: %v", plan.model, err)
 	}
 	s.cache.add(newLoaded(stored, m))
@@ -653,6 +661,9 @@ func checkReport(r fitters.Report) error {
 // GetFitJob returns a job and, once it succeeded, its model.
 func (s *Server) GetFitJob(ctx context.Context, req *mixdv1.GetFitJobRequest) (*mixdv1.GetFitJobResponse, error) {
 	j, err := s.jobs.get(req.GetName())
+	if s.replica.elsewhere(err) {
+		return s.replica.getJob(ctx, req.GetName())
+	}
 	if err != nil {
 		return nil, err
 	}
@@ -663,6 +674,9 @@ func (s *Server) GetFitJob(ctx context.Context, req *mixdv1.GetFitJobRequest) (*
 // WatchFitJob streams a job's state, progress and model until it ends.
 func (s *Server) WatchFitJob(req *mixdv1.WatchFitJobRequest, stream grpc.ServerStreamingServer[mixdv1.WatchFitJobResponse]) error {
 	j, err := s.jobs.get(req.GetName())
+	if s.replica.elsewhere(err) {
+		return toStatus(s.replica.watchJob(stream.Context(), req.GetName(), watchSink(stream)))
+	}
 	if err != nil {
 		return err
 	}
@@ -686,6 +700,9 @@ func (s *Server) WatchFitJob(req *mixdv1.WatchFitJobRequest, stream grpc.ServerS
 // Cancelling a job that has already ended is FAILED_PRECONDITION.
 func (s *Server) CancelFitJob(ctx context.Context, req *mixdv1.CancelFitJobRequest) (*mixdv1.CancelFitJobResponse, error) {
 	j, err := s.jobs.get(req.GetName())
+	if s.replica.elsewhere(err) {
+		return s.replica.cancelJob(ctx, req.GetName())
+	}
 	if err != nil {
 		return nil, err
 	}
@@ -709,6 +726,9 @@ const cancelWait = 5 * time.Second
 
 // ListFitJobs lists recent jobs, newest first.
 func (s *Server) ListFitJobs(ctx context.Context, req *mixdv1.ListFitJobsRequest) (*mixdv1.ListFitJobsResponse, error) {
+	if s.replica.sharesJobs() {
+		return s.replica.listJobs(ctx, req.GetPageSize(), req.GetPageToken())
+	}
 	jobs, next, err := s.jobs.list(req.GetPageSize(), req.GetPageToken())
 	if err != nil {
 		return nil, err

@@ -206,7 +206,7 @@ func TestFitDefaults(t *testing.T) {
 		seen = s
 		return groupFit(ctx, d, s, p)
 	})
-	sp := &mixdv1.FitSpec{Model: "d", MaxComponents: 3}
+	sp := &mixdv1.FitSpec{Model: "d", ComponentsMax: 3}
 	if _, err := fitEvents(context.Background(), e.client, &mixdv1.FitRequest{Spec: sp, Chunk: chunk(pumpRows(10, 3), false)}); err != nil {
 		t.Fatal(err)
 	}
@@ -237,9 +237,9 @@ func TestFitValidation(t *testing.T) {
 		{"no components", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.Components = 0 })}}, codes.InvalidArgument, "spec.components is 0"},
 		{"negative components", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.Components = -2 })}}, codes.InvalidArgument, "spec.components is -2"},
 		{"too many components", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.Components = 6 })}}, codes.ResourceExhausted, "spec.components is 6, above the limit of 5 (mixd serve --max-components)"},
-		{"range too wide", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.MaxComponents = 9 })}}, codes.ResourceExhausted, "spec.max_components is 9"},
-		{"range reversed", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.MinComponents, s.MaxComponents = 4, 3 })}}, codes.InvalidArgument, "spec.min_components (4) is greater than spec.max_components (3)"},
-		{"min without max", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.MinComponents = 2 })}}, codes.InvalidArgument, "spec.min_components is 2 but spec.max_components is 0"},
+		{"range too wide", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.ComponentsMax = 9 })}}, codes.ResourceExhausted, "spec.components_max is 9"},
+		{"range reversed", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.ComponentsMin, s.ComponentsMax = 4, 3 })}}, codes.InvalidArgument, "spec.components_min (4) is greater than spec.components_max (3)"},
+		{"min without max", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.ComponentsMin = 2 })}}, codes.InvalidArgument, "spec.components_min is 2 but spec.components_max is 0"},
 		{"family", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.Family = 9 })}}, codes.InvalidArgument, "spec.family: unknown value 9"},
 		{"structure", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.CovarianceStructure = 9 })}}, codes.InvalidArgument, "spec.covariance_structure: unknown value 9"},
 		{"criterion", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.Criterion = 9 })}}, codes.InvalidArgument, "spec.criterion: unknown value 9"},
@@ -259,7 +259,7 @@ func TestFitValidation(t *testing.T) {
 		})}}, codes.Unimplemented, "does not fit the tied structure"},
 		{"bad start", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) { s.StartParameters = badStart })}}, codes.InvalidArgument, "spec.start_parameters:"},
 		{"start with range", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) {
-			s.MaxComponents, s.StartParameters = 3, refModel("").Parameters
+			s.ComponentsMax, s.StartParameters = 3, refModel("").Parameters
 		})}}, codes.InvalidArgument, "spec.start_parameters cannot be combined with a component range"},
 		{"start structure", []*mixdv1.FitRequest{{Spec: with(func(s *mixdv1.FitSpec) {
 			s.StartParameters, s.CovarianceStructure = refModel("").Parameters, mixdv1.CovarianceStructure_COVARIANCE_STRUCTURE_DIAGONAL
@@ -304,7 +304,7 @@ func TestFitValidation(t *testing.T) {
 			{Spec: good(), Chunk: &mixdv1.FitChunk{Data: encodeMatrix(2, 2, rows[:4], false), StartLabels: &mixdv1.Labels{Values: []int32{0, 2}}}}},
 			codes.InvalidArgument, "messages[0].chunk.start_labels: label of row 1 is 2, want a component index in [0, 2)"},
 		{"labels with range", []*mixdv1.FitRequest{
-			{Spec: with(func(s *mixdv1.FitSpec) { s.MaxComponents = 3 }), Chunk: &mixdv1.FitChunk{Data: encodeMatrix(2, 2, rows[:4], false), StartLabels: &mixdv1.Labels{Values: []int32{0, 1}}}}},
+			{Spec: with(func(s *mixdv1.FitSpec) { s.ComponentsMax = 3 }), Chunk: &mixdv1.FitChunk{Data: encodeMatrix(2, 2, rows[:4], false), StartLabels: &mixdv1.Labels{Values: []int32{0, 1}}}}},
 			codes.InvalidArgument, "start_labels cannot be combined with a component range"},
 		{"weights without data", []*mixdv1.FitRequest{{Spec: good(), Chunk: &mixdv1.FitChunk{RowWeights: &mixdv1.Matrix{Rows: 1, Cols: 1, Values: []float64{1}}}}},
 			codes.InvalidArgument, "row_weights or start_labels sent without data rows"},

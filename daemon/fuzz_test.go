@@ -36,7 +36,7 @@ func fuzzServer(t testing.TB) (*Server, *memStore) {
 func FuzzCheckSpec(f *testing.F) {
 	for _, sp := range []*mixdv1.FitSpec{
 		spec("pumps", 2),
-		{Model: "x", MinComponents: 2, MaxComponents: 4, Family: mixdv1.Family_FAMILY_STUDENT_T, Fitter: "tfake"},
+		{Model: "x", ComponentsMin: 2, ComponentsMax: 4, Family: mixdv1.Family_FAMILY_STUDENT_T, Fitter: "tfake"},
 		{Model: "x", StartParameters: refModel("").Parameters, FeatureNames: []string{"a", "b"}},
 		{Model: "x", Components: 3, Tolerance: math.Inf(1), Options: map[string]string{"a": "b"}},
 	} {

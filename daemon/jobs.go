@@ -247,10 +247,16 @@ type jobManager struct {
 	jobs   map[string]*job
 	order  []*job // by seq, oldest first
 	active int
+
+	// For metrics: jobs that ended, by final state, and creations refused
+	// because MaxActiveJobs jobs were active.
+	ended    map[mixdv1.FitJobState]uint64
+	refused  uint64
+	runTimes []time.Duration // of the most recent jobs that succeeded, for retry hints
 }
 
 func newJobManager(l Limits) *jobManager {
-	return &jobManager{limits: l, jobs: map[string]*job{}}
+	return &jobManager{limits: l, jobs: map[string]*job{}, ended: map[mixdv1.FitJobState]uint64{}}
 }
 
 // create registers a new job in state RECEIVING for model with fitter.
@@ -263,7 +269,8 @@ func (m *jobManager) create(model, fitter string, cancel context.CancelCauseFunc
 	m.mu.Lock()
 	defer m.mu.Unlock()
 	if m.active >= m.limits.MaxActiveJobs {
-		return nil, exhaustedf("%d fit jobs are already receiving, queued or running, the limit (mixd serve --max-active-jobs); retry later", m.active)
+		m.refused++
+		return nil, queueFull(m.active, m.retryDelayLocked())
 	}
 	m.seq++
 	j := &job{
@@ -286,6 +293,7 @@ func (m *jobManager) create(model, fitter string, cancel context.CancelCauseFunc
 	go func() {
 		<-j.done
 		m.mu.Lock()
+		m.recordEndLocked(j)
 		m.active--
 		m.pruneLocked()
 		m.mu.Unlock()

@@ -17,7 +17,7 @@ type Limits struct {
 	// have. Default 1024.
 	MaxDimension int64
 	// MaxComponents is the most components a fit may ask for (components or
-	// max_components) or an imported model may have. Default 256.
+	// components_max) or an imported model may have. Default 256.
 	MaxComponents int64
 	// MaxSampleCount is the most rows one SampleStream call may draw in all.
 	// Default 100 000 000.
@@ -39,6 +39,10 @@ type Limits struct {
 	// RESOURCE_EXHAUSTED naming the streaming call to use instead.
 	// Default 64 MiB.
 	MaxMessageBytes int
+	// MaxFitMemory caps the estimated peak memory of one fit (see
+	// EstimateFitBytes), checked as its rows arrive, before it starts.
+	// Default 4 GiB.
+	MaxFitMemory int64
 }
 
 // Default limit values; see the Limits fields.
@@ -52,6 +56,7 @@ const (
 	DefaultMaxActiveJobs   = 16
 	DefaultJobHistory      = 1000
 	DefaultMaxMessageBytes = 64 << 20
+	DefaultMaxFitMemory    = 4 << 30
 )
 
 // DefaultLimits returns the default limits.
@@ -88,6 +93,9 @@ func (l Limits) withDefaults() Limits {
 	if l.MaxMessageBytes == 0 {
 		l.MaxMessageBytes = DefaultMaxMessageBytes
 	}
+	if l.MaxFitMemory == 0 {
+		l.MaxFitMemory = DefaultMaxFitMemory
+	}
 	return l
 }
 
@@ -107,6 +115,7 @@ func (l Limits) Validate() error {
 		{"max active jobs", int64(l.MaxActiveJobs)},
 		{"job history", int64(l.JobHistory)},
 		{"max message bytes", int64(l.MaxMessageBytes)},
+		{"max fit memory", l.MaxFitMemory},
 	} {
 		if c.v < 0 {
 			return fmt.Errorf("limits: %s is %d, must be positive", c.name, c.v)

@@ -79,6 +79,36 @@ type Config struct {
 	// starting a fitter host (tests); Run does not close them.
 	Store store.Store
 	Host  FitterHost
+
+	// StoreURL, when set, selects the PostgreSQL model store at this
+	// postgres:// URL instead of DataDir, shared with other daemons
+	// (replica.go, storeopen.go).
+	StoreURL string
+	// Replica configures sharing with other daemons (shared stores only).
+	Replica ReplicaOptions
+
+	// Security and observability (serving.go, auth.go, tlsconfig.go,
+	// metrics.go, tracing.go). Zero values leave each off.
+
+	// TLS serves the API over TLS or mutual TLS; reloaded on Reload.
+	TLS TLSFiles
+	// TokenFile is a bearer token file (auth.go); reloaded on Reload.
+	TokenFile string
+	// DefaultTimeout is the deadline of unary calls that arrive without
+	// one; 0 means DefaultCallTimeout, negative means none.
+	DefaultTimeout time.Duration
+	// MetricsListen, when set, serves Prometheus metrics at /metrics on
+	// this TCP address.
+	MetricsListen string
+	// HealthListen, when set, serves grpc.health.v1 alone, in plain text
+	// and without tokens, on this TCP address (for probes).
+	HealthListen string
+	// PluginManifest pins the SHA-256 of external fitters
+	// (fitterhost.Config.Manifest).
+	PluginManifest string
+	// TraceFile, when set, records an OpenTelemetry span per call in this
+	// file (JSON, one span per object).
+	TraceFile string
 }
 
 // Run serves the mixd API until ctx is done, then shuts down gracefully:
@@ -97,12 +127,27 @@ func Run(ctx context.Context, cfg Config) (err error) {
 		return err
 	}
 	lim := cfg.Limits.withDefaults()
+	ext, err := newExtras(cfg, log)
+	if err != nil {
+		return err
+	}
+	defer ext.close()
 	timeout := cfg.ShutdownTimeout
 	if timeout <= 0 {
 		timeout = DefaultShutdownTimeout
 	}
 
 	st := cfg.Store
+	if st == nil && cfg.StoreURL != "" {
+		if st, err = openSharedStore(ctx, cfg.StoreURL, log); err != nil {
+			return err
+		}
+		defer func() {
+			if cerr := st.Close(); cerr != nil && err == nil {
+				err = fmt.Errorf("close store: %w", cerr)
+			}
+		}()
+	}
 	if st == nil {
 		dir := cfg.DataDir
 		if dir == "" {
@@ -131,13 +176,18 @@ func Run(ctx context.Context, cfg Config) (err error) {
 		if args == nil {
 			args = func(name string) []string { return []string{"fitter", name} }
 		}
-		h, err := fitterhost.New(fitterhost.Config{
+		hcfg := fitterhost.Config{
 			SelfExecutable: exe,
 			SelfArgs:       args,
 			BuiltIn:        cfg.BuiltIn,
 			PluginDir:      cfg.PluginDir,
 			Logger:         log,
-		})
+			Manifest:       cfg.PluginManifest,
+		}
+		if ext.metrics != nil {
+			hcfg.Hooks = ext.metrics.fitterHooks()
+		}
+		h, err := fitterhost.New(hcfg)
 		if err != nil {
 			return fmt.Errorf("start fitter host: %w", err)
 		}
@@ -151,23 +201,39 @@ func Run(ctx context.Context, cfg Config) (err error) {
 
 	srv, err := NewServer(Options{
 		Store: st, Host: host, Limits: lim, CacheBytes: cfg.CacheBytes,
-		MaxConcurrentFits: cfg.MaxConcurrentFits, Logger: log,
+		MaxConcurrentFits: cfg.MaxConcurrentFits, Logger: log, Replica: cfg.Replica,
 	})
 	if err != nil {
 		return err
 	}
 	defer srv.Close()
+	if ext.metrics != nil {
+		ext.metrics.watchServer(srv)
+	}
 
 	lis, addr, err := Listen(cfg.Listen)
 	if err != nil {
 		return err
 	}
-	gs := NewGRPCServer(srv, lim, log)
+	gs := NewGRPCServer(srv, lim, log, ext.serverOptions()...)
 	hs := health.NewServer()
 	healthpb.RegisterHealthServer(gs, hs)
 	hs.SetServingStatus("", healthpb.HealthCheckResponse_SERVING)
 	hs.SetServingStatus(mixdv1.MixtureService_ServiceDesc.ServiceName, healthpb.HealthCheckResponse_SERVING)
 	reflection.Register(gs)
+	if ext.metrics != nil {
+		ext.metrics.grpc.InitializeMetrics(gs)
+		if err := ext.startMetrics(cfg.MetricsListen, cfg.Status); err != nil {
+			lis.Close()
+			return err
+		}
+	}
+	if cfg.HealthListen != "" {
+		if err := ext.startHealth(cfg.HealthListen, hs, cfg.Status); err != nil {
+			lis.Close()
+			return err
+		}
+	}
 
 	serveErr := make(chan error, 1)
 	go func() { serveErr <- gs.Serve(lis) }()
@@ -184,8 +250,10 @@ func Run(ctx context.Context, cfg Config) (err error) {
 					if !ok {
 						return
 					}
+					ext.reload()
 					problems, err := host.Reload(ctx)
 					if err != nil {
+						ext.metrics.reloadFailed("fitters")
 						log.Error("reload fitters", "error", err)
 					}
 					for _, p := range problems {
@@ -223,10 +291,11 @@ func Run(ctx context.Context, cfg Config) (err error) {
 }
 
 // NewGRPCServer returns a gRPC server with the message limits of lim,
-// panic recovery, and srv registered.
-func NewGRPCServer(srv mixdv1.MixtureServiceServer, lim Limits, log *slog.Logger) *grpc.Server {
+// panic recovery, and srv registered. Interceptors in extra run outside
+// (before) the panic recovery.
+func NewGRPCServer(srv mixdv1.MixtureServiceServer, lim Limits, log *slog.Logger, extra ...grpc.ServerOption) *grpc.Server {
 	lim = lim.withDefaults()
-	gs := grpc.NewServer(
+	gs := grpc.NewServer(append(extra,
 		grpc.MaxRecvMsgSize(lim.MaxMessageBytes),
 		grpc.MaxSendMsgSize(lim.MaxMessageBytes),
 		grpc.ChainUnaryInterceptor(func(ctx context.Context, req any, info *grpc.UnaryServerInfo, h grpc.UnaryHandler) (resp any, err error) {
@@ -237,7 +306,7 @@ func NewGRPCServer(srv mixdv1.MixtureServiceServer, lim Limits, log *slog.Logger
 			defer recoverCall(log, info.FullMethod, &err)
 			return h(srv, ss)
 		}),
-	)
+	)...)
 	mixdv1.RegisterMixtureServiceServer(gs, srv)
 	return gs
 }

@@ -57,6 +57,9 @@ type Options struct {
 	MaxConcurrentFits int
 	// Logger receives the server's log; nil discards it.
 	Logger *slog.Logger
+	// Replica configures sharing models and fit jobs with other daemons;
+	// used only when Store supports it (replica.go).
+	Replica ReplicaOptions
 }
 
 // Server implements mixdv1.MixtureServiceServer: it validates requests,
@@ -65,13 +68,14 @@ type Options struct {
 type Server struct {
 	mixdv1.UnimplementedMixtureServiceServer
 
-	store  store.Store
-	host   FitterHost
-	limits Limits
-	log    *slog.Logger
-	cache  *modelCache
-	jobs   *jobManager
-	slots  chan struct{} // one token per running fit
+	store   store.Store
+	host    FitterHost
+	limits  Limits
+	log     *slog.Logger
+	cache   *modelCache
+	jobs    *jobManager
+	slots   chan struct{} // one token per running fit
+	replica *replica      // nil unless the store is shared (replica.go)
 
 	baseCtx    context.Context // parent of every job; cancelled by Close
 	baseCancel context.CancelCauseFunc
@@ -118,6 +122,11 @@ func NewServer(o Options) (*Server, error) {
 	}
 	s.baseCtx, s.baseCancel = context.WithCancelCause(context.Background())
 	s.cache = newModelCache(o.CacheBytes, o.Store.Get, buildModel)
+	r, err := newReplica(s, o.Replica)
+	if err != nil {
+		return nil, err
+	}
+	s.replica = r
 	return s, nil
 }
 
@@ -132,6 +141,7 @@ func (s *Server) Close() {
 		s.baseCancel(errShutdown)
 		s.jobs.cancelAll(errShutdown)
 		s.wg.Wait()
+		s.replica.close()
 	})
 }
 

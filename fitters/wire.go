@@ -48,8 +48,8 @@ func settingsToProto(s Settings) (*fitterv1.Settings, error) {
 		v    int
 	}{
 		{"settings.components", s.Components},
-		{"settings.min_components", s.MinComponents},
-		{"settings.max_components", s.MaxComponents},
+		{"settings.components_min", s.MinComponents},
+		{"settings.components_max", s.MaxComponents},
 		{"settings.max_iterations", s.MaxIterations},
 		{"settings.restarts", s.Restarts},
 	}
@@ -60,8 +60,8 @@ func settingsToProto(s Settings) (*fitterv1.Settings, error) {
 	}
 	pb := &fitterv1.Settings{
 		Components:          int32(s.Components),
-		MinComponents:       int32(s.MinComponents),
-		MaxComponents:       int32(s.MaxComponents),
+		ComponentsMin:       int32(s.MinComponents),
+		ComponentsMax:       int32(s.MaxComponents),
 		Criterion:           criterionToProto(s.Criterion),
 		Family:              wire.FamilyToProto(s.Family),
 		CovarianceStructure: wire.StructureToProto(s.Structure),
@@ -91,8 +91,8 @@ func settingsFromProto(pb *fitterv1.Settings) (Settings, error) {
 	}
 	s := Settings{
 		Components:    int(pb.GetComponents()),
-		MinComponents: int(pb.GetMinComponents()),
-		MaxComponents: int(pb.GetMaxComponents()),
+		MinComponents: int(pb.GetComponentsMin()),
+		MaxComponents: int(pb.GetComponentsMax()),
 		Seed:          pb.GetSeed(),
 		MaxIterations: int(pb.GetMaxIterations()),
 		Tolerance:     pb.GetTolerance(),

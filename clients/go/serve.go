@@ -19,6 +19,12 @@ type ScoreOptions struct {
 	// OutlierLevel is the level of the outlier rule for Student-t models;
 	// 0 means the level stored with the model.
 	OutlierLevel float64
+	// Observed marks which values of the rows are observed (rows×cols flags,
+	// row-major; nil means all). Rows are then scored under the marginal
+	// mixture of their observed features; values at unobserved positions are
+	// ignored but must be finite. Rows with an unobserved feature get a NaN
+	// percentile.
+	Observed []bool
 }
 
 // ScoreResult holds per-row scores.
@@ -52,6 +58,9 @@ func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts Scor
 	if err := rows.check("rows"); err != nil {
 		return nil, err
 	}
+	if err := checkObserved(opts.Observed, rows); err != nil {
+		return nil, err
+	}
 	width := rows.Cols
 	if opts.ComponentLogDensities {
 		// The response is wider than the request: size chunks by it.
@@ -61,11 +70,12 @@ func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts Scor
 		}
 		width, opts.Version = max(width, k+2), version
 	}
-	step := c.rowsPerChunk(8 * width)
+	step := c.rowsPerChunk(8*width + maskWidth(opts.Observed, rows))
 	if rows.Rows <= step {
 		uctx, cancel := c.unaryContext(ctx)
 		defer cancel()
 		resp, err := c.svc.Score(uctx, &mixdv1.ScoreRequest{
+			ObservedMask:                 maskBytes(opts.Observed, rows, 0, rows.Rows),
 			Model:                        model,
 			Version:                      opts.Version,
 			Rows:                         rows.ToProto(),
@@ -94,7 +104,7 @@ func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts Scor
 	go func() {
 		lo := 0
 		sendDone <- sendAll(len(chunks), func(i int, first bool) error {
-			req := &mixdv1.ScoreStreamRequest{Rows: rows.slice(lo, lo+chunks[i]).ToProto()}
+			req := &mixdv1.ScoreStreamRequest{Rows: rows.slice(lo, lo+chunks[i]).ToProto(), ObservedMask: maskBytes(opts.Observed, rows, lo, lo+chunks[i])}
 			lo += chunks[i]
 			if first {
 				req.Model = model
@@ -242,6 +252,10 @@ type ClassifyOptions struct {
 	MinPosterior float64
 	// Posteriors asks for every component's posterior probability.
 	Posteriors bool
+	// Observed marks which values of the rows are observed (see
+	// ScoreOptions.Observed); posteriors are then given the observed
+	// features only.
+	Observed []bool
 }
 
 // ClassifyResult holds per-row assignments.
@@ -265,6 +279,9 @@ func (c *Client) Classify(ctx context.Context, model string, rows Matrix, opts C
 	if err := rows.check("rows"); err != nil {
 		return nil, err
 	}
+	if err := checkObserved(opts.Observed, rows); err != nil {
+		return nil, err
+	}
 	width := rows.Cols
 	if opts.Posteriors {
 		k, version, err := c.components(ctx, model, opts.Version)
@@ -273,11 +290,12 @@ func (c *Client) Classify(ctx context.Context, model string, rows Matrix, opts C
 		}
 		width, opts.Version = max(width, k+2), version
 	}
-	step := c.rowsPerChunk(8 * width)
+	step := c.rowsPerChunk(8*width + maskWidth(opts.Observed, rows))
 	if rows.Rows <= step {
 		uctx, cancel := c.unaryContext(ctx)
 		defer cancel()
 		resp, err := c.svc.Classify(uctx, &mixdv1.ClassifyRequest{
+			ObservedMask:      maskBytes(opts.Observed, rows, 0, rows.Rows),
 			Model:             model,
 			Version:           opts.Version,
 			Rows:              rows.ToProto(),
@@ -306,7 +324,7 @@ func (c *Client) Classify(ctx context.Context, model string, rows Matrix, opts C
 	go func() {
 		lo := 0
 		sendDone <- sendAll(len(chunks), func(i int, first bool) error {
-			req := &mixdv1.ClassifyStreamRequest{Rows: rows.slice(lo, lo+chunks[i]).ToProto()}
+			req := &mixdv1.ClassifyStreamRequest{Rows: rows.slice(lo, lo+chunks[i]).ToProto(), ObservedMask: maskBytes(opts.Observed, rows, lo, lo+chunks[i])}
 			lo += chunks[i]
 			if first {
 				req.Model = model

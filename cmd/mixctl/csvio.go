@@ -18,6 +18,11 @@ type table struct {
 	source string // file name, for messages
 	header []string
 	data   mixdclient.Matrix
+	// observed marks the cells that held a number (rows×cols, row-major);
+	// nil when every cell did. An empty cell is unobserved and reads as 0.
+	observed []bool
+	// lines holds the file line of every data row, for messages.
+	lines []int
 }
 
 // openInput opens path, or returns standard input for "-".
@@ -33,7 +38,8 @@ func (a *app) openInput(path string) (io.ReadCloser, string, error) {
 }
 
 // readTable reads a CSV file with a header row; every other field must be
-// a finite number. Errors name the file, line and column.
+// a finite number or empty (an unobserved value, see table.observed).
+// Errors name the file, line and column.
 func (a *app) readTable(path string) (*table, error) {
 	rc, name, err := a.openInput(path)
 	if err != nil {
@@ -82,7 +88,13 @@ func readCSV(r io.Reader, name string) (*table, error) {
 			return nil, csvError(name, err)
 		}
 		line, _ := cr.FieldPos(0)
+		t.lines = append(t.lines, line)
 		for j, f := range rec {
+			if strings.TrimSpace(f) == "" {
+				t.markMissing(len(t.data.Values))
+				t.data.Values = append(t.data.Values, 0)
+				continue
+			}
 			v, err := strconv.ParseFloat(strings.TrimSpace(f), 64)
 			if err != nil {
 				return nil, inputf("%s: line %d, column %s: %q is not a number", name, line, t.header[j], f)
@@ -95,7 +107,31 @@ func readCSV(r io.Reader, name string) (*table, error) {
 		t.data.Rows++
 	}
 	t.data.Cols = cols
+	if t.observed != nil {
+		for len(t.observed) < len(t.data.Values) {
+			t.observed = append(t.observed, true)
+		}
+	}
 	return t, nil
+}
+
+// markMissing records value i (row-major) as unobserved.
+func (t *table) markMissing(i int) {
+	for len(t.observed) < i {
+		t.observed = append(t.observed, true)
+	}
+	t.observed = append(t.observed, false)
+}
+
+// requireComplete rejects a table with an empty cell, naming the first.
+func (t *table) requireComplete(cmd string) error {
+	for i, o := range t.observed {
+		if !o {
+			return inputf("%s: line %d, column %s is empty; %s needs every value (score, classify and predict treat empty cells as unobserved)",
+				t.source, t.lines[i/len(t.header)], t.header[i%len(t.header)], cmd)
+		}
+	}
+	return nil
 }
 
 // csvError turns an encoding/csv error into an inputError naming the line.
@@ -125,13 +161,26 @@ func (t *table) selectColumns(names []string) (*table, error) {
 			return nil, inputf("%s: no column named %q (the header has %s)", t.source, n, strings.Join(t.header, ", "))
 		}
 	}
-	out := &table{source: t.source, header: append([]string(nil), names...)}
+	out := &table{source: t.source, header: append([]string(nil), names...), lines: t.lines}
 	out.data = mixdclient.Matrix{Rows: t.data.Rows, Cols: len(names), Values: make([]float64, 0, t.data.Rows*len(names))}
+	var observed []bool
+	missing := false
+	if t.observed != nil {
+		observed = make([]bool, 0, t.data.Rows*len(names))
+	}
 	for r := range t.data.Rows {
 		row := t.data.Row(r)
 		for _, j := range idx {
 			out.data.Values = append(out.data.Values, row[j])
+			if observed != nil {
+				o := t.observed[r*len(t.header)+j]
+				observed = append(observed, o)
+				missing = missing || !o
+			}
 		}
+	}
+	if missing {
+		out.observed = observed
 	}
 	return out, nil
 }

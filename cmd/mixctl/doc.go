@@ -42,6 +42,13 @@
 //	    --min-posterior X              confident=false below this posterior
 //	    --posteriors                   add posterior_K columns
 //	sample --model M --count N [--seed S] [--version N] [--format csv|jsonl]
+//	predict --model M [flags] FILE.csv  fill empty cells with their conditional mean
+//	    --std                          add FEATURE_sd columns (conditional standard deviations)
+//	    --draws N  --seed S            N completed rows per row instead (multiple imputation)
+//	    --version N  --format csv|jsonl  --columns a,b,c
+//	compare MODEL[@VERSION] MODEL[@VERSION] [--samples N] [--seed S] [--format text|json]
+//	                                   KL divergence both ways with standard errors,
+//	                                   components matched by Bhattacharyya distance
 //	models [--format table|json]       newest version of every model
 //	show MODEL [--version N] [--format text|json]
 //	versions MODEL [--format table|json]
@@ -51,9 +58,15 @@
 //	fitters [--format table|json]      available fitters and their options
 //	help [COMMAND]
 //
-// FILE may be "-" for standard input. Row numbers in the output of score
-// and classify count data rows from 1 (the header is not a row).
+// FILE may be "-" for standard input. Row numbers in the output of score,
+// classify and predict count data rows from 1 (the header is not a row).
 // Component indices count from 0.
+//
+// An empty CSV cell is an unobserved value: score and classify evaluate such
+// a row under the marginal mixture of its observed features (its percentile
+// is NaN, as a marginal density is not comparable with the training rows'),
+// predict fills it, and fit rejects it. "NaN" or any other word is an error,
+// not a missing value.
 //
 // The percentile of a row is the share, in percent, of the model's own
 // training rows whose log-density is lower than the row's. It says how rare

@@ -219,6 +219,9 @@ func (a *app) fit(f *fitFlags, path string) error {
 			return err
 		}
 	}
+	if err := t.requireComplete("fit"); err != nil {
+		return err
+	}
 	opts, err := f.clientOptions(t.header)
 	if err != nil {
 		return err

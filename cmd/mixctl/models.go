@@ -37,11 +37,39 @@ whose log-density is lower. A percentile of 0.5 means the row is rarer than
 only: it is not a diagnosis of a fault, and a row can be rare for harmless
 reasons (or common while something is wrong). Decisions about equipment or
 safety belong to the operator's own procedures.
+
+Empty cells are unobserved values: such a row is scored by the marginal
+mixture of its observed features (exact for Gaussian and Student-t
+components). Its percentile is NaN (null in JSON) and --below skips it: a
+density over fewer features cannot be compared with the training rows'.
 `,
 	"classify": `Output columns: row (1-based data row of the input), the input columns
 with --with-input, component (0-based index of the most probable component),
 max_posterior (its posterior probability) and confident (false when
 max_posterior is below --min-posterior).
+
+Empty cells are unobserved values: the posteriors are then those given the
+observed features of the row only.
+`,
+	"predict": `Fills the empty cells of each row with their conditional mean given the
+row's other values under the model (a mixture of the components'
+conditionals, weighted by each component's posterior given the observed
+values). Output columns: row (1-based data row of the input) and the model's
+features, given values unchanged; --std adds FEATURE_sd columns, the
+conditional standard deviations (0 for given values). --draws N prints N
+completed rows per input row drawn from the conditional distribution instead
+(columns row, draw, features), for multiple imputation; the same --seed gives
+the same draws. A filled value is a model-based estimate, not a measurement.
+`,
+	"compare": `Compares two models, or two versions of one model (pumps@1 pumps@2), over
+the same features. KL(p||q) is a Monte Carlo estimate, from --samples draws
+of p, of the Kullback-Leibler divergence in nats, with its standard error; 0
+means the models agree, and an estimate within a few standard errors of 0 is
+no evidence of a difference. The components are paired so that the sum of
+their Bhattacharyya distances is smallest (Student-t components through their
+moment-matched Gaussians). A large divergence says the models spread
+probability differently; it does not say why, nor whether it matters for a
+given use.
 `,
 	"sample": `Output columns: the model's feature names (x1, x2, ... when it has none)
 and component, the 0-based component each row was drawn from.

@@ -137,7 +137,8 @@ type cell struct {
 	i    int64
 	b    bool
 	list []float64
-	kind byte // 'f', 'i', 'b', 'l'
+	obs  []bool // for a list: false marks an unobserved value (empty in CSV, null in JSON)
+	kind byte   // 'f', 'i', 'b', 'l'
 }
 
 func fcell(v float64) cell   { return cell{f: v, kind: 'f'} }
@@ -157,6 +158,9 @@ func (c cell) csv(b []byte) []byte {
 		if i > 0 {
 			b = append(b, ',')
 		}
+		if c.obs != nil && !c.obs[i] {
+			continue
+		}
 		b = strconv.AppendFloat(b, v, 'g', -1, 64)
 	}
 	return b
@@ -175,6 +179,10 @@ func (c cell) json(b []byte) []byte {
 	for i, v := range c.list {
 		if i > 0 {
 			b = append(b, ',')
+		}
+		if c.obs != nil && !c.obs[i] {
+			b = append(b, "null"...)
+			continue
 		}
 		b = appendJSONFloat(b, v)
 	}
@@ -250,7 +258,7 @@ func (a *app) score(r *rowFlags, sc scoreChoices, path string) error {
 	if err != nil {
 		return err
 	}
-	res, err := c.Score(a.ctx, m.GetName(), t.data, mixdclient.ScoreOptions{Version: m.GetVersion(), ComponentLogDensities: comps, OutlierLevel: sc.level})
+	res, err := c.Score(a.ctx, m.GetName(), t.data, mixdclient.ScoreOptions{Version: m.GetVersion(), ComponentLogDensities: comps, OutlierLevel: sc.level, Observed: t.observed})
 	if err != nil {
 		return err
 	}
@@ -304,12 +312,13 @@ func (a *app) score(r *rowFlags, sc scoreChoices, path string) error {
 }
 
 // inputCells repeats row i's input values when --with-input is set: one
-// list cell (a JSON array in the order of the CSV header).
+// list cell (a JSON array in the order of the CSV header), unobserved
+// values empty (CSV) or null (JSON).
 func inputCells(r *rowFlags, t *table, i int) []cell {
 	if !r.withInput {
 		return nil
 	}
-	return []cell{lcell(t.data.Row(i))}
+	return []cell{t.rowCell(i)}
 }
 
 func classifyCommand(fs *flag.FlagSet) runner {
@@ -328,7 +337,7 @@ func (a *app) classify(r *rowFlags, minPost float64, posts bool, path string) er
 	if err != nil {
 		return err
 	}
-	res, err := c.Classify(a.ctx, m.GetName(), t.data, mixdclient.ClassifyOptions{Version: m.GetVersion(), MinPosterior: minPost, Posteriors: posts})
+	res, err := c.Classify(a.ctx, m.GetName(), t.data, mixdclient.ClassifyOptions{Version: m.GetVersion(), MinPosterior: minPost, Posteriors: posts, Observed: t.observed})
 	if err != nil {
 		return err
 	}

@@ -126,7 +126,7 @@ func parseBytes(s string) (int64, error) {
 }
 
 // serve runs the daemon until SIGINT or SIGTERM; SIGHUP rescans the
-// plugin directory.
+// plugin directory and reloads the TLS files and the token file.
 func serve(args []string, stderr io.Writer) int {
 	fs := flag.NewFlagSet("mixd serve", flag.ContinueOnError)
 	fs.SetOutput(stderr)
@@ -152,10 +152,25 @@ func serve(args []string, stderr io.Writer) int {
 	fs.Var(&msgBytes, "max-message-bytes", "largest gRPC message received or sent (e.g. 64MiB)")
 	fs.DurationVar(&cfg.ShutdownTimeout, "shutdown-timeout", daemon.DefaultShutdownTimeout, "time running calls get to finish on shutdown")
 	fs.StringVar(&logLevel, "log-level", "info", "log level: debug, info, warn or error")
+	var extra extraFlags
+	addExtraFlags(fs, &cfg, &extra)
+	addStoreFlags(fs, &cfg) // storeflags.go
 	if err := fs.Parse(args); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
 			return exitOK
 		}
+		return exitUsage
+	}
+	if err := applyConfigSources(fs, os.LookupEnv); err != nil {
+		fmt.Fprintf(stderr, "mixd serve: %v\n", err)
+		return exitUsage
+	}
+	if err := extra.finish(&cfg); err != nil {
+		fmt.Fprintf(stderr, "mixd serve: %v\n", err)
+		return exitUsage
+	}
+	if err := checkStoreFlags(&cfg); err != nil {
+		fmt.Fprintf(stderr, "mixd serve: %v\n", err)
 		return exitUsage
 	}
 	if fs.NArg() > 0 {
@@ -188,7 +203,7 @@ func serve(args []string, stderr io.Writer) int {
 	}
 	cfg.CacheBytes = int64(cache)
 	cfg.Limits.MaxMessageBytes = int(msgBytes)
-	cfg.Logger = slog.New(slog.NewTextHandler(stderr, &slog.HandlerOptions{Level: level}))
+	cfg.Logger = newLogger(extra.logFormat, stderr, level)
 	cfg.Status = stderr
 	cfg.BuiltIn = builtin.Names()
 

@@ -68,6 +68,11 @@ type Config struct {
 	// StartTimeout bounds the start of a plugin process; zero means
 	// DefaultStartTimeout.
 	StartTimeout time.Duration
+	// Manifest, when set, is the path of a manifest pinning the SHA-256 of
+	// every executable of PluginDir that may run (see manifest.go).
+	Manifest string
+	// Hooks receive plugin process events (for metrics).
+	Hooks Hooks
 }
 
 // Entry describes an available fitter.
@@ -104,6 +109,7 @@ type entry struct {
 	sha256 string
 	path   string
 	args   []string
+	pinned bool // sha256 is pinned by the manifest: checked at every launch
 
 	launchMu  sync.Mutex // serialises launches of this fitter
 	info      fitters.Info
@@ -135,6 +141,9 @@ func New(cfg Config) (*Host, error) {
 	}
 	if cfg.SelfArgs == nil {
 		cfg.SelfArgs = func(name string) []string { return []string{"fitter", name} }
+	}
+	if cfg.Manifest != "" && cfg.PluginDir == "" {
+		return nil, errors.New("fitter host: a fitter manifest pins executables of the plugin directory; set the plugin directory too")
 	}
 	if len(cfg.BuiltIn) > 0 && cfg.SelfExecutable == "" {
 		return nil, errors.New("fitter host: SelfExecutable is required to run built-in fitters")
@@ -237,6 +246,9 @@ func (h *Host) Fit(ctx context.Context, name string, data fitters.Data, s fitter
 	res, err := p.fitter.Fit(ctx, data, s, progress)
 	lost := err != nil && ctx.Err() == nil && h.lost(p, err)
 	h.release(e, p, lost)
+	if lost {
+		h.cfg.Hooks.lost(name)
+	}
 	switch {
 	case lost:
 		return nil, fmt.Errorf("%w: fitter %q process exited during the fit: %v", ErrUnavailable, name, err)
@@ -307,8 +319,10 @@ func (h *Host) acquire(e *entry) (*process, error) {
 
 	p, err := h.launch(e)
 	if err != nil {
+		h.cfg.Hooks.launchFailed(e.name)
 		return nil, fmt.Errorf("%w: starting fitter %q: %v", ErrUnavailable, e.name, err)
 	}
+	h.cfg.Hooks.launched(e.name)
 	h.mu.Lock()
 	defer h.mu.Unlock()
 	if h.closed {
@@ -373,7 +387,16 @@ func (h *Host) lost(p *process, err error) bool {
 func (h *Host) launch(e *entry) (*process, error) {
 	cmd := exec.Command(e.path, e.args...)
 	cmd.Env = append(hostEnv(), fitters.ParentPIDEnv+"="+strconv.Itoa(os.Getpid()))
+	var secure *plugin.SecureConfig
+	if e.pinned {
+		sum, err := hex.DecodeString(e.sha256)
+		if err != nil {
+			return nil, fmt.Errorf("pinned digest of %s: %v", e.path, err)
+		}
+		secure = &plugin.SecureConfig{Checksum: sum, Hash: sha256.New()}
+	}
 	client := plugin.NewClient(&plugin.ClientConfig{
+		SecureConfig:     secure,
 		HandshakeConfig:  fitters.Handshake,
 		Plugins:          fitters.PluginSet(nil),
 		Cmd:              cmd,
@@ -388,6 +411,9 @@ func (h *Host) launch(e *entry) (*process, error) {
 	rpc, err := client.Client()
 	if err != nil {
 		client.Kill()
+		if errors.Is(err, plugin.ErrChecksumsDoNotMatch) {
+			h.log.Error("fitter plugin refused: its executable changed since it was checked against the manifest", "fitter", e.name, "path", e.path, "pinned_sha256", e.sha256)
+		}
 		return nil, err
 	}
 	raw, err := rpc.Dispense(fitters.PluginName)
@@ -435,6 +461,12 @@ func (h *Host) Reload(ctx context.Context) (problems []string, err error) {
 	if err != nil {
 		return nil, fmt.Errorf("reading the fitter plugin directory: %w", err)
 	}
+	var pins manifest
+	if h.cfg.Manifest != "" {
+		if pins, err = loadManifest(h.cfg.Manifest); err != nil {
+			return nil, err
+		}
+	}
 
 	h.mu.Lock()
 	if h.closed {
@@ -471,11 +503,19 @@ func (h *Host) Reload(ctx context.Context) (problems []string, err error) {
 			problems = append(problems, fmt.Sprintf("%s: %v", path, err))
 			continue
 		}
+		if pins != nil {
+			if err := pins.check(de.Name(), sum); err != nil {
+				h.log.Error("fitter plugin refused by the manifest", "path", path, "sha256", sum, "manifest", h.cfg.Manifest, "reason", err)
+				h.cfg.Hooks.refused(path)
+				problems = append(problems, fmt.Sprintf("%s: %v", path, err))
+				continue
+			}
+		}
 		if old := byPath[path]; old != nil && old.sha256 == sum {
 			kept = append(kept, old)
 			continue
 		}
-		e, p, err := h.probe(ctx, path, sum)
+		e, p, err := h.probe(ctx, path, sum, pins != nil)
 		if err != nil {
 			problems = append(problems, fmt.Sprintf("%s: %v", path, err))
 			continue
@@ -547,11 +587,12 @@ func (h *Host) Reload(ctx context.Context) (problems []string, err error) {
 }
 
 // probe starts the executable at path and asks its name.
-func (h *Host) probe(ctx context.Context, path, sum string) (*entry, *process, error) {
-	e := &entry{source: path, sha256: sum, path: path}
+func (h *Host) probe(ctx context.Context, path, sum string, pinned bool) (*entry, *process, error) {
+	e := &entry{source: path, sha256: sum, path: path, pinned: pinned}
 	e.name = filepath.Base(path)
 	p, err := h.launch(e)
 	if err != nil {
+		h.cfg.Hooks.launchFailed(e.name)
 		return nil, nil, fmt.Errorf("not a working fitter plugin: %v", err)
 	}
 	ctx, cancel := context.WithTimeout(ctx, h.cfg.StartTimeout)
@@ -566,6 +607,7 @@ func (h *Host) probe(ctx context.Context, path, sum string) (*entry, *process, e
 		return nil, nil, fmt.Errorf("fitter name %q is not valid (letters, digits, '.', '_', '-'; at most 64)", info.Name)
 	}
 	e.name, e.info, e.described = info.Name, info, true
+	h.cfg.Hooks.launched(e.name)
 	return e, p, nil
 }
 

@@ -32,6 +32,7 @@ import (
 //	<dir>/models/<id>/<version>.json  one record per model version, e.g. models/pumps/3.json
 //	<dir>/models/<id>/high-water      highest version ever assigned, kept when versions are deleted
 //	<dir>/models/<id>/.tmp-*          a write in progress (or abandoned by a crash)
+//	<dir>/quarantine/<id>/<version>.json  damaged records moved aside (quarantine.go)
 //
 // A record is a JSON object holding the model document (see
 // daemon/modeldoc/FORMAT.md) and the SHA-256 of its exact bytes:
@@ -50,7 +51,9 @@ import (
 // wrapping ErrCorrupt that names the file; Get of the newest version, List
 // and Versions skip it (logging a warning), so "newest" means the newest
 // readable version. Corrupt records are never served, and their version
-// numbers are never reused; Delete removes them.
+// numbers are never reused; Delete removes them. Records whose bytes are
+// damaged are moved to the quarantine directory when first read (see
+// quarantine.go).
 //
 // The next version of a model is one more than the larger of its highest
 // version file and its high-water file. Delete raises the high-water mark
@@ -428,6 +431,7 @@ func (s *DirStore) Delete(ctx context.Context, name string, version int64) (int6
 	if err != nil {
 		return 0, fmt.Errorf("delete %s: %w", what, err)
 	}
+	nums = s.withQuarantined(id, nums)
 	targets := nums
 	if version > 0 {
 		targets = nil
@@ -452,6 +456,9 @@ func (s *DirStore) Delete(ctx context.Context, name string, version int64) (int6
 	}
 	for _, v := range targets {
 		if err := os.Remove(filepath.Join(dir, versionFile(v))); err != nil && !errors.Is(err, fs.ErrNotExist) {
+			return 0, fmt.Errorf("delete %s: %w", what, err)
+		}
+		if err := s.removeQuarantined(id, v); err != nil {
 			return 0, fmt.Errorf("delete %s: %w", what, err)
 		}
 	}
@@ -550,6 +557,9 @@ func (s *DirStore) newest(ctx context.Context, id string) (*mixdv1.Model, error)
 	if firstCorrupt != nil {
 		return nil, fmt.Errorf("no readable version (%d corrupt; the newest: %w)", corrupt, firstCorrupt)
 	}
+	if q := s.quarantinedCount(id); q > 0 {
+		return nil, fmt.Errorf("%w: no readable version: %d quarantined in %s", ErrCorrupt, q, filepath.Join(s.dir, quarantineDir, id))
+	}
 	return nil, ErrNotFound
 }
 
@@ -558,6 +568,9 @@ func (s *DirStore) read(id string, v int64) (*mixdv1.Model, error) {
 	path := filepath.Join(s.models, id, versionFile(v))
 	b, err := os.ReadFile(path)
 	if errors.Is(err, fs.ErrNotExist) {
+		if q := s.quarantined(id, v); q != "" {
+			return nil, fmt.Errorf("%w: %s: quarantined as %s: it failed its checks when it was read", ErrCorrupt, path, q)
+		}
 		return nil, ErrNotFound
 	}
 	if err != nil {
@@ -565,6 +578,9 @@ func (s *DirStore) read(id string, v int64) (*mixdv1.Model, error) {
 	}
 	corrupt := func(format string, args ...any) error {
 		return fmt.Errorf("%w: %s: %s", ErrCorrupt, path, fmt.Sprintf(format, args...))
+	}
+	damaged := func(format string, args ...any) error {
+		return s.quarantine(id, v, b, corrupt(format, args...))
 	}
 	var rec struct {
 		Record        string          `json:"record"`
@@ -575,27 +591,27 @@ func (s *DirStore) read(id string, v int64) (*mixdv1.Model, error) {
 	dec := json.NewDecoder(bytes.NewReader(b))
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&rec); err != nil {
-		return nil, corrupt("not a complete record (%d bytes): %v", len(b), err)
+		return nil, damaged("not a complete record (%d bytes): %v", len(b), err)
 	}
 	if rest := bytes.TrimSpace(b[dec.InputOffset():]); len(rest) > 0 {
-		return nil, corrupt("%d unexpected bytes after the record", len(rest))
+		return nil, damaged("%d unexpected bytes after the record", len(rest))
 	}
 	if rec.Record != recordKind {
-		return nil, corrupt("record kind %q, want %q", rec.Record, recordKind)
+		return nil, damaged("record kind %q, want %q", rec.Record, recordKind)
 	}
 	if rec.RecordVersion != recordVersion {
 		return nil, corrupt("record_version %d is not one this build reads (%d)", rec.RecordVersion, recordVersion)
 	}
 	sum := sha256.Sum256(rec.Document)
 	if got := hex.EncodeToString(sum[:]); got != rec.SHA256 {
-		return nil, corrupt("checksum mismatch: the record says sha256 %s, the document hashes to %s", rec.SHA256, got)
+		return nil, damaged("checksum mismatch: the record says sha256 %s, the document hashes to %s", rec.SHA256, got)
 	}
 	m, err := modeldoc.Decode(rec.Document)
 	if err != nil {
 		return nil, corrupt("%v", err)
 	}
 	if want := modeldoc.NamePrefix + id; m.Name != want || m.Version != v {
-		return nil, corrupt("holds %s version %d, want %s version %d", m.Name, m.Version, want, v)
+		return nil, damaged("holds %s version %d, want %s version %d", m.Name, m.Version, want, v)
 	}
 	return m, nil
 }

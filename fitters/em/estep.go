@@ -3,9 +3,10 @@ package em
 import (
 	"math"
 	"runtime"
-	"sync"
-	"sync/atomic"
 
+	"github.com/mixd-dev/mixd/fitters/internal/layout"
+	"github.com/mixd-dev/mixd/fitters/internal/loop"
+	"github.com/mixd-dev/mixd/fitters/internal/prep"
 	"github.com/mixd-dev/mixd/fitters/mixture"
 )
 
@@ -46,23 +47,23 @@ type pass struct {
 }
 
 func newPass(p *problem, k int) *pass {
-	d := p.d
-	s := p.cfg.structure
-	sxxLen := k * covLen(s, d)
-	per := covLen(s, d)
+	d := p.D
+	s := p.Structure
+	sxxLen := k * layout.Len(s, d)
+	per := layout.Len(s, d)
 	if s == mixture.Tied {
-		sxxLen = tri(d)
+		sxxLen = prep.Tri(d)
 		per = 0
 	}
 	accLen := k + k*d + sxxLen
-	rows := max(minChunkRows, (p.n+maxChunks-1)/maxChunks)
+	rows := max(minChunkRows, (p.N+maxChunks-1)/maxChunks)
 	if budget := maxAccumBytes / (8 * accLen); budget >= 1 {
-		rows = max(rows, (p.n+budget-1)/budget)
+		rows = max(rows, (p.N+budget-1)/budget)
 	} else {
-		rows = p.n
+		rows = p.N
 	}
-	nc := (p.n + rows - 1) / rows
-	ps := &pass{p: p, k: k, chunks: make([]accum, nc), rowLD: make([]float64, p.n)}
+	nc := (p.N + rows - 1) / rows
+	ps := &pass{p: p, k: k, chunks: make([]accum, nc), rowLD: make([]float64, p.N)}
 	mk := func(a *accum) {
 		a.nk = make([]float64, k)
 		a.sx = make([]float64, k*d)
@@ -75,7 +76,7 @@ func newPass(p *problem, k int) *pass {
 		a.diff = make([]float64, k*d)
 		a.lp = make([]float64, k)
 		a.lo = c * rows
-		a.hi = min(p.n, (c+1)*rows)
+		a.hi = min(p.N, (c+1)*rows)
 	}
 	mk(&ps.total)
 	return ps
@@ -85,29 +86,7 @@ func newPass(p *problem, k int) *pass {
 // reduced statistics into ps.total.
 func (ps *pass) run(st *state) {
 	nc := len(ps.chunks)
-	workers := min(runtime.GOMAXPROCS(0), nc)
-	if workers <= 1 {
-		for c := range ps.chunks {
-			ps.chunk(st, &ps.chunks[c])
-		}
-	} else {
-		var next atomic.Int64
-		var wg sync.WaitGroup
-		for w := 0; w < workers; w++ {
-			wg.Add(1)
-			go func() {
-				defer wg.Done()
-				for {
-					c := int(next.Add(1) - 1)
-					if c >= nc {
-						return
-					}
-					ps.chunk(st, &ps.chunks[c])
-				}
-			}()
-		}
-		wg.Wait()
-	}
+	loop.Parallel(min(runtime.GOMAXPROCS(0), nc), nc, func(_, c int) { ps.chunk(st, &ps.chunks[c]) })
 	t := &ps.total
 	t.ll = 0
 	clear(t.nk)
@@ -116,16 +95,9 @@ func (ps *pass) run(st *state) {
 	for c := range ps.chunks {
 		a := &ps.chunks[c]
 		t.ll += a.ll
-		addTo(t.nk, a.nk)
-		addTo(t.sx, a.sx)
-		addTo(t.sxx, a.sxx)
-	}
-}
-
-func addTo(dst, src []float64) {
-	src = src[:len(dst)]
-	for i, v := range src {
-		dst[i] += v
+		loop.AddTo(t.nk, a.nk)
+		loop.AddTo(t.sx, a.sx)
+		loop.AddTo(t.sxx, a.sxx)
 	}
 }
 
@@ -135,7 +107,7 @@ func (ps *pass) chunk(st *state, a *accum) {
 	clear(a.nk)
 	clear(a.sx)
 	clear(a.sxx)
-	switch st.structure {
+	switch st.Structure {
 	case mixture.Full, mixture.Tied:
 		ps.chunkFull(st, a)
 	default:
@@ -149,14 +121,14 @@ func (ps *pass) chunk(st *state, a *accum) {
 // components, then the responsibility-weighted moments.
 func (ps *pass) chunkFull(st *state, a *accum) {
 	p := ps.p
-	d, k := p.d, st.k
-	td := tri(d)
+	d, k := p.D, st.K
+	td := prep.Tri(d)
 	wstride := td // stride between whitening matrices
-	if st.structure == mixture.Tied {
+	if st.Structure == mixture.Tied {
 		wstride = 0
 	}
 	sstride := a.sxxPerCompLen
-	x, iw := p.x, p.iw
+	x, iw := p.X, p.W
 	diff, lp := a.diff, a.lp[:k]
 	logConst := st.logConst[:k]
 	rowLD := ps.rowLD
@@ -172,8 +144,8 @@ func (ps *pass) chunkFull(st *state, a *accum) {
 			} else if n <= guess {
 				c = n - 1
 			}
-			mu := st.mean[c*d : (c+1)*d]
-			U := st.white[c*wstride : c*wstride+td]
+			mu := st.Mean[c*d : (c+1)*d]
+			U := st.White[c*wstride : c*wstride+td]
 			dk := diff[c*d : (c+1)*d]
 			mu = mu[:len(dk)]
 			xi := xi[:len(dk)]
@@ -291,16 +263,16 @@ func expShift(lp []float64, best float64) float64 {
 // chunkDiag is chunkFull for diagonal and spherical covariances.
 func (ps *pass) chunkDiag(st *state, a *accum) {
 	p := ps.p
-	d, k := p.d, st.k
-	x, iw := p.x, p.iw
+	d, k := p.D, st.K
+	x, iw := p.X, p.W
 	diff, lp := a.diff, a.lp
 	rowLD := ps.rowLD
 	for i := a.lo; i < a.hi; i++ {
 		xi := x[i*d : (i+1)*d]
 		best := math.Inf(-1)
 		for c := 0; c < k; c++ {
-			mu := st.mean[c*d : (c+1)*d]
-			inv := st.invd[c*d : (c+1)*d]
+			mu := st.Mean[c*d : (c+1)*d]
+			inv := st.InvD[c*d : (c+1)*d]
 			dk := diff[c*d : (c+1)*d]
 			var maha float64
 			for j := 0; j < d; j++ {

@@ -1,106 +1,25 @@
 package em
 
 import (
-	"math"
 	"math/rand/v2"
 
 	"github.com/mixd-dev/mixd/fitters"
 )
 
-// startState builds the starting parameters of one restart for k components.
+// startState builds the starting parameters of one restart for k
+// components: the caller's start or labels, else k-means++ seeds on
+// standardised features with a nearest-seed assignment.
 func (p *problem) startState(cfg *config, k int, rng *rand.Rand) (*state, error) {
-	switch {
-	case cfg.start != nil:
-		return p.fromParams(cfg.start)
-	case cfg.labels != nil:
-		return p.fromLabels(cfg.labels, k)
-	}
-	seeds, err := p.kmeansPP(k, rng)
-	if err != nil {
+	st := newState(k, p.D, p.Structure)
+	if err := p.Begin(&st.State, cfg.start.Params, cfg.start.Labels, rng, seedingShort); err != nil {
 		return nil, err
 	}
-	return p.fromLabels(p.nearest(seeds), k)
+	st.setLogConst()
+	return st, nil
 }
 
-// scaledDist2 is the squared Euclidean distance between rows a and b after
-// dividing each feature by its standard deviation in the data.
-func (p *problem) scaledDist2(a, b int) float64 {
-	d := p.d
-	xa, xb := p.x[a*d:(a+1)*d], p.x[b*d:(b+1)*d]
-	var s float64
-	for j, v := range xa {
-		t := (v - xb[j]) * p.scale[j]
-		s += t * t
-	}
-	return s
-}
-
-// kmeansPP picks k seed rows by k-means++ (Arthur and Vassilvitskii, 2007):
-// the first with probability proportional to the row weight, each further
-// one with probability proportional to weight × squared distance to the
-// nearest seed already chosen. Distances are measured on standardised
-// features so that no feature dominates by its unit.
-func (p *problem) kmeansPP(k int, rng *rand.Rand) ([]int, error) {
-	seeds := make([]int, 0, k)
-	dist := make([]float64, p.n)
-	pick := func(total float64, mass func(i int) float64) int {
-		u := rng.Float64() * total
-		last := -1
-		var cum float64
-		for i := 0; i < p.n; i++ {
-			m := mass(i)
-			if m <= 0 {
-				continue
-			}
-			last = i
-			cum += m
-			if cum > u {
-				return i
-			}
-		}
-		return last // rounding left u at the very end
-	}
-	first := pick(p.iwsum, p.rowWeight)
-	seeds = append(seeds, first)
-	for i := range dist {
-		dist[i] = p.scaledDist2(i, first)
-	}
-	mass := func(i int) float64 { return p.rowWeight(i) * dist[i] }
-	for len(seeds) < k {
-		var total float64
-		for i := 0; i < p.n; i++ {
-			total += mass(i)
-		}
-		s := -1
-		if total > 0 && !math.IsInf(total, 0) {
-			s = pick(total, mass)
-		}
-		if s < 0 {
-			return nil, fitters.Errorf(fitters.FailedPrecondition,
-				"seeding: only %d of the %d requested components could be seeded: the remaining rows differ from the seeds by less than double precision resolves at the data's scale", len(seeds), k)
-		}
-		seeds = append(seeds, s)
-		for i := range dist {
-			if v := p.scaledDist2(i, s); v < dist[i] {
-				dist[i] = v
-			}
-		}
-	}
-	return seeds, nil
-}
-
-// nearest labels every row with the index of its nearest seed (standardised
-// distance; ties go to the lower index).
-func (p *problem) nearest(seeds []int) []int {
-	labels := make([]int, p.n)
-	for i := 0; i < p.n; i++ {
-		best, bd := 0, math.Inf(1)
-		for c, s := range seeds {
-			if v := p.scaledDist2(i, s); v < bd {
-				best, bd = c, v
-			}
-		}
-		labels[i] = best
-	}
-	return labels
+// seedingShort is the error when only seeded of k components could be seeded.
+func seedingShort(seeded, k int) error {
+	return fitters.Errorf(fitters.FailedPrecondition,
+		"seeding: only %d of the %d requested components could be seeded: the remaining rows differ from the seeds by less than double precision resolves at the data's scale", seeded, k)
 }

@@ -72,6 +72,26 @@
 // Sampler.Next calls. A Sampler is not safe for concurrent use; make one per
 // goroutine.
 //
+// # Incomplete rows, conditionals and comparison
+//
+// Marginal evaluates rows with some features unobserved, given by an
+// explicit mask (NaN is never a missing-value marker): each component's
+// marginal over the observed features is exact (Gaussian: N(μ_o, Σ_oo);
+// Student-t: same ν, location μ_o, scale Σ_oo). Conditional returns the
+// distribution of the unobserved features given the observed ones: a
+// mixture weighted by the marginal posteriors, of Gaussian conditionals
+// (Schur complement) or Student-t conditionals with ν + p_o degrees of
+// freedom, summarised by its mean and covariance (law of total covariance)
+// and optionally drawn from (multiple imputation, seeded per row). Both
+// factorise Σ once per distinct observation pattern of a batch, with the
+// observed features ordered first, so that one Cholesky factor yields the
+// marginal factor, the regression coefficients and the conditional factor.
+//
+// Compare estimates the Kullback–Leibler divergence between two models in
+// both directions by Monte Carlo (seeded, with standard errors) and matches
+// their components by minimum total Bhattacharyya distance
+// (MinCostAssignment, the Hungarian method).
+//
 // # What a score means
 //
 // A log-density or posterior says how well a row fits the fitted model, not

@@ -96,8 +96,8 @@ func SettingsToProto(s fitters.Settings) (*fitterv1.Settings, error) {
 		v    int
 	}{
 		{"settings.components", s.Components},
-		{"settings.min_components", s.MinComponents},
-		{"settings.max_components", s.MaxComponents},
+		{"settings.components_min", s.MinComponents},
+		{"settings.components_max", s.MaxComponents},
 		{"settings.max_iterations", s.MaxIterations},
 		{"settings.restarts", s.Restarts},
 	}
@@ -108,8 +108,8 @@ func SettingsToProto(s fitters.Settings) (*fitterv1.Settings, error) {
 	}
 	pb := &fitterv1.Settings{
 		Components:          int32(s.Components),
-		MinComponents:       int32(s.MinComponents),
-		MaxComponents:       int32(s.MaxComponents),
+		ComponentsMin:       int32(s.MinComponents),
+		ComponentsMax:       int32(s.MaxComponents),
 		Criterion:           CriterionToProto(s.Criterion),
 		Family:              FamilyToProto(s.Family),
 		CovarianceStructure: StructureToProto(s.Structure),
@@ -137,8 +137,8 @@ func SettingsFromProto(pb *fitterv1.Settings) (fitters.Settings, error) {
 	}
 	s := fitters.Settings{
 		Components:    int(pb.GetComponents()),
-		MinComponents: int(pb.GetMinComponents()),
-		MaxComponents: int(pb.GetMaxComponents()),
+		MinComponents: int(pb.GetComponentsMin()),
+		MaxComponents: int(pb.GetComponentsMax()),
 		Seed:          pb.GetSeed(),
 		MaxIterations: int(pb.GetMaxIterations()),
 		Tolerance:     pb.GetTolerance(),

@@ -36,7 +36,7 @@ const (
 // named by the outcome).
 func (p *problem) dfStep(st *state, ps *pass, reseeded []bool) []dfOutcome {
 	cfg := p.cfg
-	out := make([]dfOutcome, st.k)
+	out := make([]dfOutcome, st.K)
 	if cfg.dfMode == dfFixed {
 		return out
 	}
@@ -48,7 +48,7 @@ func (p *problem) dfStep(st *state, ps *pass, reseeded []bool) []dfOutcome {
 		if cfg.sharing == shareAll {
 			ps.ecmeShared(st)
 		} else {
-			for k := 0; k < st.k; k++ {
+			for k := 0; k < st.K; k++ {
 				ps.ecmeComponent(st, k)
 			}
 		}
@@ -71,10 +71,10 @@ func (p *problem) dfStep(st *state, ps *pass, reseeded []bool) []dfOutcome {
 func (p *problem) ecmStep(st *state, ps *pass, reseeded []bool, out []dfOutcome) {
 	cfg := p.cfg
 	t := &ps.total
-	d := float64(p.d)
+	d := float64(p.D)
 	if cfg.sharing == shareAll {
 		var slu, nk float64
-		for k := 0; k < st.k; k++ {
+		for k := 0; k < st.K; k++ {
 			slu += t.slu[k]
 			nk += t.nk[k]
 		}
@@ -85,7 +85,7 @@ func (p *problem) ecmStep(st *state, ps *pass, reseeded []bool, out []dfOutcome)
 		}
 		return
 	}
-	for k := 0; k < st.k; k++ {
+	for k := 0; k < st.K; k++ {
 		if reseeded[k] || !(t.nk[k] > 0) {
 			continue
 		}
@@ -149,7 +149,7 @@ func (ps *pass) ecmeComponent(st *state, k int) {
 	p := ps.p
 	cfg := p.cfg
 	K := ps.k
-	d := float64(p.d)
+	d := float64(p.D)
 	// other[i] = log Σ_{j≠k} w_j f_j(x_i).
 	forChunks(len(p.chunks), func(ci int) {
 		for i := p.chunks[ci].lo; i < p.chunks[ci].hi; i++ {
@@ -173,10 +173,10 @@ func (ps *pass) ecmeComponent(st *state, k int) {
 			ps.other[i] = m + math.Log(s)
 		}
 	})
-	logW := math.Log(st.weight[k])
-	logDet := st.logDet[st.covIndex(k)]
+	logW := math.Log(st.Weight[k])
+	logDet := st.LogDet[st.CovIndex(k)]
 	terms := func(nu float64) (float64, float64, float64) {
-		return logW + mixture.LogNormalizer(mixture.StudentT, p.d, nu, logDet), 0.5 * (nu + d), 1 / nu
+		return logW + mixture.LogNormalizer(mixture.StudentT, p.D, nu, logDet), 0.5 * (nu + d), 1 / nu
 	}
 	// fg returns −L and −∂L/∂log ν at θ = log ν.
 	fg := func(theta float64) (float64, float64) {
@@ -186,7 +186,7 @@ func (ps *pass) ecmeComponent(st *state, k int) {
 		forChunks(len(p.chunks), func(ci int) {
 			var sf, sg float64
 			for i := p.chunks[ci].lo; i < p.chunks[ci].hi; i++ {
-				w := p.rowWeight(i)
+				w := p.Weight(i)
 				if w == 0 {
 					continue
 				}
@@ -234,16 +234,16 @@ func (ps *pass) ecmeShared(st *state) {
 	p := ps.p
 	cfg := p.cfg
 	K := ps.k
-	d := float64(p.d)
+	d := float64(p.D)
 	logW := make([]float64, K)
 	for j := range logW {
-		logW[j] = math.Log(st.weight[j])
+		logW[j] = math.Log(st.Weight[j])
 	}
 	cst := make([]float64, K)
 	fg := func(theta float64) (float64, float64) {
 		nu := math.Exp(theta)
 		for j := 0; j < K; j++ {
-			cst[j] = logW[j] + mixture.LogNormalizer(mixture.StudentT, p.d, nu, st.logDet[st.covIndex(j)])
+			cst[j] = logW[j] + mixture.LogNormalizer(mixture.StudentT, p.D, nu, st.LogDet[st.CovIndex(j)])
 		}
 		h, inv := 0.5*(nu+d), 1/nu
 		cg := dfScore(nu, d)
@@ -251,7 +251,7 @@ func (ps *pass) ecmeShared(st *state) {
 			v, tt := ps.chunks[ci].a, ps.chunks[ci].e
 			var sf, sg float64
 			for i := p.chunks[ci].lo; i < p.chunks[ci].hi; i++ {
-				w := p.rowWeight(i)
+				w := p.Weight(i)
 				if w == 0 {
 					continue
 				}

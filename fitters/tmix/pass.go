@@ -3,9 +3,10 @@ package tmix
 import (
 	"math"
 	"runtime"
-	"sync"
-	"sync/atomic"
 
+	"github.com/mixd-dev/mixd/fitters/internal/layout"
+	"github.com/mixd-dev/mixd/fitters/internal/loop"
+	"github.com/mixd-dev/mixd/fitters/internal/prep"
 	"github.com/mixd-dev/mixd/fitters/mixture"
 )
 
@@ -22,27 +23,7 @@ const mahaCap = 1e300
 // forChunks runs fn(c) for every c in [0, n) on up to GOMAXPROCS goroutines.
 // fn must write only to state owned by chunk c.
 func forChunks(n int, fn func(c int)) {
-	workers := min(runtime.GOMAXPROCS(0), n)
-	if workers <= 1 {
-		for c := 0; c < n; c++ {
-			fn(c)
-		}
-		return
-	}
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for w := 0; w < workers; w++ {
-		wg.Go(func() {
-			for {
-				c := int(next.Add(1) - 1)
-				if c >= n {
-					return
-				}
-				fn(c)
-			}
-		})
-	}
-	wg.Wait()
+	loop.Parallel(min(runtime.GOMAXPROCS(0), n), n, func(_, c int) { fn(c) })
 }
 
 // accum holds one chunk's sufficient statistics, computed against the
@@ -110,14 +91,14 @@ type pass struct {
 }
 
 func newPass(p *problem, k int) *pass {
-	d := p.d
-	sxxLen := k * covLen(p.cfg.structure, d)
+	d := p.D
+	sxxLen := k * layout.Len(p.Structure, d)
 	ps := &pass{
 		p: p, k: k,
 		chunks: make([]accum, len(p.chunks)),
 		total:  newAccum(k, d, sxxLen, false),
-		dist:   make([]float64, p.n*k),
-		rowLD:  make([]float64, p.n),
+		dist:   make([]float64, p.N*k),
+		rowLD:  make([]float64, p.N),
 		sums:   make([]float64, len(p.chunks)),
 		gsums:  make([]float64, len(p.chunks)),
 		curv:   make([]float64, k),
@@ -129,8 +110,8 @@ func newPass(p *problem, k int) *pass {
 		ps.chunks[c] = newAccum(k, d, sxxLen, true)
 	}
 	if p.cfg.dfMode == dfEstimate && p.cfg.update == updateECME {
-		ps.lt = make([]float64, p.n*k)
-		ps.other = make([]float64, p.n)
+		ps.lt = make([]float64, p.N*k)
+		ps.other = make([]float64, p.N)
 	}
 	ps.needLogU = p.cfg.dfMode == dfEstimate && p.cfg.update == updateECM
 	return ps
@@ -138,7 +119,7 @@ func newPass(p *problem, k int) *pass {
 
 // setDFConst caches the per-component degrees-of-freedom constants of st.
 func (ps *pass) setDFConst(st *state) {
-	d := float64(st.d)
+	d := float64(st.D)
 	for c, v := range st.df {
 		ps.half[c] = 0.5 * (v + d)
 		ps.inv[c] = 1 / v
@@ -149,14 +130,14 @@ func (ps *pass) setDFConst(st *state) {
 // maha returns the squared Mahalanobis distance of the deviation dk from
 // component c of st (z is scratch of length D), capped at mahaCap.
 func maha(st *state, c int, dk, z []float64) float64 {
-	d := st.d
-	ci := st.covIndex(c)
-	inv := st.invd[ci*d : (ci+1)*d]
+	d := st.D
+	ci := st.CovIndex(c)
+	inv := st.InvD[ci*d : (ci+1)*d]
 	var s float64
-	switch st.structure {
+	switch st.Structure {
 	case mixture.Full, mixture.Tied:
-		td := tri(d)
-		L := st.chol[ci*td : (ci+1)*td]
+		td := prep.Tri(d)
+		L := st.Chol[ci*td : (ci+1)*td]
 		off := 0
 		for j := 0; j < d; j++ {
 			row := L[off : off+j]
@@ -194,18 +175,11 @@ func (ps *pass) estep(st *state) {
 	for c := range ps.chunks {
 		a := &ps.chunks[c]
 		t.ll += a.ll
-		addTo(t.nk, a.nk)
-		addTo(t.su, a.su)
-		addTo(t.slu, a.slu)
-		addTo(t.sx, a.sx)
-		addTo(t.sxx, a.sxx)
-	}
-}
-
-func addTo(dst, src []float64) {
-	src = src[:len(dst)]
-	for i, v := range src {
-		dst[i] += v
+		loop.AddTo(t.nk, a.nk)
+		loop.AddTo(t.su, a.su)
+		loop.AddTo(t.slu, a.slu)
+		loop.AddTo(t.sx, a.sx)
+		loop.AddTo(t.sxx, a.sxx)
 	}
 }
 
@@ -214,18 +188,18 @@ func (ps *pass) estepChunk(st *state, ci int) {
 	p := ps.p
 	a := &ps.chunks[ci]
 	a.reset()
-	d, k := p.d, ps.k
-	full := st.structure == mixture.Full || st.structure == mixture.Tied
-	cl := covLen(st.structure, d)
+	d, k := p.D, ps.k
+	full := st.Structure == mixture.Full || st.Structure == mixture.Tied
+	cl := layout.Len(st.Structure, d)
 	computeDist := !ps.distValid
 	diff, z, lp, e := a.diff, a.z, a.a, a.e
 	dist := ps.dist
 	for i := p.chunks[ci].lo; i < p.chunks[ci].hi; i++ {
-		xi := p.row(i)
+		xi := p.Row(i)
 		di := dist[i*k : (i+1)*k]
 		best := math.Inf(-1)
 		for c := 0; c < k; c++ {
-			mu := st.mean[c*d : (c+1)*d]
+			mu := st.Mean[c*d : (c+1)*d]
 			dk := diff[c*d : (c+1)*d]
 			for j, v := range xi {
 				dk[j] = v - mu[j]
@@ -247,7 +221,7 @@ func (ps *pass) estepChunk(st *state, ci int) {
 		}
 		lse := best + math.Log(sum)
 		ps.rowLD[i] = lse
-		wi := p.rowWeight(i)
+		wi := p.Weight(i)
 		if wi == 0 {
 			continue
 		}
@@ -296,14 +270,14 @@ func (ps *pass) estepChunk(st *state, ci int) {
 func (ps *pass) distances(st *state) {
 	ps.setDFConst(st)
 	p := ps.p
-	d, k := p.d, ps.k
+	d, k := p.D, ps.k
 	forChunks(len(ps.chunks), func(ci int) {
 		a := &ps.chunks[ci]
 		dk, z := a.diff[:d], a.z
 		for i := p.chunks[ci].lo; i < p.chunks[ci].hi; i++ {
-			xi := p.row(i)
+			xi := p.Row(i)
 			for c := 0; c < k; c++ {
-				mu := st.mean[c*d : (c+1)*d]
+				mu := st.Mean[c*d : (c+1)*d]
 				for j, v := range xi {
 					dk[j] = v - mu[j]
 				}

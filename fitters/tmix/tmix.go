@@ -5,10 +5,11 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"strings"
 	"time"
 
 	"github.com/mixd-dev/mixd/fitters"
+	"github.com/mixd-dev/mixd/fitters/internal/loop"
+	"github.com/mixd-dev/mixd/fitters/internal/settings"
 	"github.com/mixd-dev/mixd/fitters/mixture"
 )
 
@@ -90,21 +91,26 @@ var _ fitters.Fitter = (*Fitter)(nil)
 // New returns a Student-t mixture fitter.
 func New() *Fitter { return &Fitter{} }
 
+// method describes this fitter to the shared settings resolution.
+func method() settings.Method {
+	return settings.Method{
+		Name:       Name,
+		Structures: []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical, mixture.Tied},
+		Defaults:   settings.Defaults{MaxIterations: DefaultMaxIterations, Tolerance: DefaultTolerance, Restarts: DefaultRestarts},
+		Style:      settings.Labelled,
+	}
+}
+
 // Describe reports the estimator's name, version, supported family and
 // structures, and its method-specific options.
 func (f *Fitter) Describe(ctx context.Context) (fitters.Info, error) {
-	if err := fitters.ContextError(ctx); err != nil {
-		return fitters.Info{}, err
-	}
-	return fitters.Info{
-		Name:    Name,
+	return method().Describe(ctx, fitters.Info{
 		Version: Version,
 		Description: "Robust mixtures of multivariate Student-t distributions by ECM " +
 			"(Peel and McLachlan, 2000) with ECME degrees-of-freedom steps (Liu and Rubin, 1995): " +
 			"heavy-tailed components down-weight gross errors, and training rows beyond the " +
 			"outlier level are counted; k-means++ seeding, restarts, choice of K by BIC or AIC",
-		Families:   []mixture.Family{mixture.StudentT},
-		Structures: []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical, mixture.Tied},
+		Families: []mixture.Family{mixture.StudentT},
 		Options: []fitters.OptionInfo{
 			{Name: optDF, Default: valEstimate,
 				Description: `degrees of freedom: "estimate", or a positive number that every component keeps fixed`},
@@ -127,7 +133,7 @@ func (f *Fitter) Describe(ctx context.Context) (fitters.Info, error) {
 			{Name: optMinRows, Default: "D+1 for full, 2 for diagonal and spherical, 1 for tied scale matrices",
 				Description: "smallest effective number of rows a component may explain before it counts as collapsed and is re-seeded (a positive number)"},
 		},
-	}, nil
+	})
 }
 
 // Fit estimates a Student-t mixture from data. See the package
@@ -150,28 +156,11 @@ func (f *Fitter) Fit(ctx context.Context, data fitters.Data, s fitters.Settings,
 	}
 	rng := rand.New(rand.NewPCG(cfg.seed, seedStream))
 
-	var (
-		best      *kResult
-		selection []fitters.SelectionRow
-	)
-	for k := cfg.kMin; k <= cfg.kMax; k++ {
-		kr, err := prob.fitK(ctx, cfg, k, rng, began, progress)
-		if err != nil {
-			return nil, err
-		}
-		if cfg.selecting {
-			selection = append(selection, fitters.SelectionRow{
-				Components:    k,
-				LogLikelihood: kr.logLik,
-				BIC:           kr.bic,
-				AIC:           kr.aic,
-				Converged:     kr.run.converged,
-				Iterations:    kr.run.iterations,
-			})
-		}
-		if best == nil || kr.score(cfg.criterion) < best.score(cfg.criterion) {
-			best = kr
-		}
+	best, selection, err := loop.ChooseK(cfg.k.Min, cfg.k.Max, cfg.k.Selecting, cfg.Criterion, func(k int) (*kResult, error) {
+		return prob.fitK(ctx, cfg, k, rng, began, progress)
+	})
+	if err != nil {
+		return nil, err
 	}
 	if err := fitters.ContextError(ctx); err != nil {
 		return nil, err
@@ -181,52 +170,27 @@ func (f *Fitter) Fit(ctx context.Context, data fitters.Data, s fitters.Settings,
 		return nil, err
 	}
 
-	rep := fitters.Report{
-		Iterations:    best.run.iterations,
-		Converged:     best.run.converged,
-		Objective:     "log_likelihood",
-		LogLikelihood: best.logLik,
-		BIC:           best.bic,
-		AIC:           best.aic,
-		History:       best.run.history,
-		Selection:     selection,
-		FlaggedRows:   flagged,
-		OutlierLevel:  cfg.outlierLevel,
-		Notes:         best.notes(cfg),
-		Settings:      cfg.echo(len(best.params.Components)),
-	}
-	if cfg.selecting {
-		rep.Notes = append(rep.Notes, fmt.Sprintf("K=%d has the lowest %s of K=%d..%d",
-			len(best.params.Components), strings.ToUpper(cfg.criterion.String()), cfg.kMin, cfg.kMax))
-	}
+	rep := best.Report("log_likelihood", best.run.History, selection)
+	rep.FlaggedRows = flagged
+	rep.OutlierLevel = cfg.outlierLevel
+	rep.Notes = append(best.notes(cfg), cfg.k.Chosen(len(best.params.Components), cfg.Criterion)...)
+	rep.Settings = cfg.echo(len(best.params.Components))
 	rep.Notes = append(rep.Notes, fmt.Sprintf("%d of %d training rows with positive weight flagged at outlier level %s (statistical rarity under the fitted model, not a diagnosis)",
-		flagged, prob.nPos, fmtFloat(cfg.outlierLevel)))
+		flagged, prob.Positive, fmtFloat(cfg.outlierLevel)))
 	return &fitters.Result{Params: best.params, Report: rep}, nil
 }
 
 // kResult is the best restart for one K, turned into a model.
 type kResult struct {
-	params   mixture.Params
-	model    *mixture.Model
-	run      *runResult
-	restart  int
-	restarts int
-	logLik   float64
-	bic, aic float64
-}
-
-func (r *kResult) score(c fitters.Criterion) float64 {
-	if c == fitters.AIC {
-		return r.aic
-	}
-	return r.bic
+	loop.Outcome
+	params  mixture.Params
+	model   *mixture.Model
+	run     *runResult
+	restart int
 }
 
 func (r *kResult) notes(cfg *config) []string {
-	notes := append([]string(nil), r.run.notes...)
-	if r.run.collapses > len(r.run.notes) {
-		notes = append(notes, fmt.Sprintf("%d further collapses were handled the same way", r.run.collapses-len(r.run.notes)))
-	}
+	notes := r.run.notes.Lines()
 	for c, n := range r.run.noRoot {
 		if n == 0 {
 			continue
@@ -258,13 +222,7 @@ func (r *kResult) notes(cfg *config) []string {
 			}
 		}
 	}
-	if r.restarts > 1 {
-		notes = append(notes, fmt.Sprintf("restart %d of %d gave the highest log-likelihood", r.restart+1, r.restarts))
-	}
-	if !r.run.converged && r.run.maxIter > 0 {
-		notes = append(notes, fmt.Sprintf("stopped after %d iterations without meeting the tolerance", r.run.iterations))
-	}
-	return notes
+	return append(notes, loop.EndNotes(r.restart, cfg.Restarts, "log-likelihood", r.run.Iterations, cfg.MaxIter, r.run.Converged)...)
 }
 
 func boundName(o dfOutcome) string {
@@ -276,48 +234,42 @@ func boundName(o dfOutcome) string {
 
 // fitK runs every restart for k components and keeps the best.
 func (p *problem) fitK(ctx context.Context, cfg *config, k int, rng *rand.Rand, began time.Time, progress func(fitters.Progress)) (*kResult, error) {
-	var (
-		best    *runResult
-		bestIdx int
-	)
-	for r := 0; r < cfg.restarts; r++ {
-		if err := fitters.ContextError(ctx); err != nil {
-			return nil, err
-		}
+	best, bestIdx, err := loop.Restarts(ctx, cfg.Restarts, func(r int) (*runResult, float64, error) {
 		st, err := p.startState(cfg, k, rng)
 		if err != nil {
-			return nil, err
+			return nil, 0, err
 		}
 		run, err := p.run(ctx, cfg, st, r, began, progress)
 		if err != nil {
-			return nil, err
+			return nil, 0, err
 		}
-		if best == nil || run.logLik > best.logLik {
-			best, bestIdx = run, r
-		}
+		return run, run.logLik, nil
+	})
+	if err != nil {
+		return nil, err
 	}
 	params := best.state.params()
 	model, err := mixture.New(params)
 	if err != nil {
 		return nil, fitters.Errorf(fitters.Internal, "tmix: fitted parameters for K=%d rejected by the model: %v", k, err)
 	}
-	ll, err := model.LogLikelihood(p.x, p.w)
+	ll, err := loop.LogLikelihood(model, p.X, p.Given, Name, "the fitted model")
 	if err != nil {
-		return nil, fitters.Errorf(fitters.Internal, "tmix: log-likelihood of the fitted model: %v", err)
-	}
-	if math.IsNaN(ll) || math.IsInf(ll, 0) {
-		return nil, fitters.Errorf(fitters.Internal, "tmix: log-likelihood of the fitted model is %v", ll)
+		return nil, err
 	}
 	np := float64(cfg.freeParameters(model))
 	return &kResult{
-		params:   params,
-		model:    model,
-		run:      best,
-		restart:  bestIdx,
-		restarts: cfg.restarts,
-		logLik:   ll,
-		bic:      -2*ll + np*math.Log(p.wsum),
-		aic:      -2*ll + 2*np,
+		Outcome: loop.Outcome{
+			LogLik:     ll,
+			BIC:        -2*ll + np*math.Log(p.WSum),
+			AIC:        -2*ll + 2*np,
+			Converged:  best.Converged,
+			Iterations: best.Iterations,
+		},
+		params:  params,
+		model:   model,
+		run:     best,
+		restart: bestIdx,
 	}, nil
 }
 
@@ -340,13 +292,13 @@ func (c *config) freeParameters(m *mixture.Model) int {
 // countFlagged applies the shared outlier rule to the training rows and
 // counts the flagged rows of positive weight.
 func (p *problem) countFlagged(m *mixture.Model, level float64) (int, error) {
-	flags := make([]bool, p.n)
-	if err := m.Outliers(p.x, level, nil, flags); err != nil {
+	flags := make([]bool, p.N)
+	if err := m.Outliers(p.X, level, nil, flags); err != nil {
 		return 0, fitters.Errorf(fitters.Internal, "tmix: outlier rule on the training rows: %v", err)
 	}
 	n := 0
 	for i, f := range flags {
-		if f && p.rowWeight(i) > 0 {
+		if f && p.Weight(i) > 0 {
 			n++
 		}
 	}

@@ -3,11 +3,11 @@ package vb
 import (
 	"fmt"
 	"math"
-	"sort"
 	"strconv"
 	"strings"
 
 	"github.com/mixd-dev/mixd/fitters"
+	"github.com/mixd-dev/mixd/fitters/internal/settings"
 	"github.com/mixd-dev/mixd/fitters/mixture"
 )
 
@@ -33,18 +33,11 @@ var optionNames = []string{OptConcentration, OptMeanStrength, OptMinRows, OptPri
 
 // config is the validated, defaults-filled form of Settings for one Fit.
 type config struct {
-	structure  mixture.Structure
-	criterion  fitters.Criterion
-	kMin, kMax int
-	selecting  bool
-	maxIter    int
-	tol        float64
-	restarts   int
-	ridge      float64
-	seed       uint64
-	start      *mixture.Params
-	labels     []int
-	startKind  string
+	settings.Basics
+	k     settings.Range
+	ridge float64
+	seed  uint64
+	start settings.Start
 
 	weights  weightPrior
 	alpha    float64 // 0: default for K
@@ -62,28 +55,9 @@ func invalid(format string, args ...any) error {
 	return fitters.Errorf(fitters.InvalidArgument, format, args...)
 }
 
-func parseNumber(name, val string) (float64, error) {
-	v, err := strconv.ParseFloat(strings.TrimSpace(val), 64)
-	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0, invalid("option %q: value %q is not a finite number", name, val)
-	}
-	return v, nil
-}
-
-func parsePositive(name, val string) (float64, error) {
-	v, err := parseNumber(name, val)
-	if err != nil {
-		return 0, err
-	}
-	if v <= 0 {
-		return 0, invalid("option %q: value %q must be positive", name, val)
-	}
-	return v, nil
-}
-
 // parseHyper reads a positive hyperparameter within [MinHyperparameter, MaxHyperparameter].
 func parseHyper(name, val string) (float64, error) {
-	v, err := parsePositive(name, val)
+	v, err := settings.Positive(name, val)
 	if err != nil {
 		return 0, err
 	}
@@ -110,9 +84,9 @@ func parseList(name, val string, want int, wantText string) ([]float64, error) {
 }
 
 // resolve validates Settings against the data and fills in defaults.
-func resolve(data fitters.Data, s fitters.Settings, p *problem) (*config, error) {
+func resolve(_ fitters.Data, s fitters.Settings, p *problem) (*config, error) {
 	cfg := &config{seed: s.Seed, weights: dirichlet, beta0: DefaultMeanStrength}
-	d := p.d
+	d := p.D
 
 	// The components are Gaussian; Family names the family of the served
 	// model: gaussian is the plug-in mixture, student_t the predictive one.
@@ -122,56 +96,10 @@ func resolve(data fitters.Data, s fitters.Settings, p *problem) (*config, error)
 		return nil, invalid("family %d is not a known family", int(s.Family))
 	}
 
-	cfg.structure = s.Structure
-	if cfg.structure == 0 && s.Start != nil {
-		cfg.structure = s.Start.Structure
-	}
-	switch cfg.structure {
-	case 0:
-		cfg.structure = mixture.Full
-	case mixture.Full, mixture.Diagonal, mixture.Spherical:
-	case mixture.Tied:
-		return nil, fitters.Errorf(fitters.Unimplemented, "structure tied is not supported by the vb fitter (supported: full, diagonal, spherical)")
-	default:
-		return nil, invalid("structure %d is not a known covariance structure", int(cfg.structure))
-	}
-
-	switch s.Criterion {
-	case 0:
-		cfg.criterion = fitters.BIC
-	case fitters.BIC, fitters.AIC:
-		cfg.criterion = s.Criterion
-	default:
-		return nil, invalid("criterion %d is not known (want bic or aic)", int(s.Criterion))
-	}
-
-	switch {
-	case s.MaxIterations == 0:
-		cfg.maxIter = DefaultMaxIterations
-	case s.MaxIterations == NoIterations:
-		cfg.maxIter = 0
-	case s.MaxIterations < NoIterations:
-		return nil, invalid("max iterations %d is negative (use -1 for no iterations, 0 for the default %d)", s.MaxIterations, DefaultMaxIterations)
-	default:
-		cfg.maxIter = s.MaxIterations
-	}
-
-	switch {
-	case math.IsNaN(s.Tolerance) || math.IsInf(s.Tolerance, 0) || s.Tolerance < 0:
-		return nil, invalid("tolerance %v must be a finite non-negative number", s.Tolerance)
-	case s.Tolerance == 0:
-		cfg.tol = DefaultTolerance
-	default:
-		cfg.tol = s.Tolerance
-	}
-
-	switch {
-	case s.Restarts < 0:
-		return nil, invalid("restarts %d is negative", s.Restarts)
-	case s.Restarts == 0:
-		cfg.restarts = DefaultRestarts
-	default:
-		cfg.restarts = s.Restarts
+	m := method()
+	var err error
+	if cfg.Basics, err = m.Basics(s); err != nil {
+		return nil, err
 	}
 
 	switch {
@@ -184,12 +112,7 @@ func resolve(data fitters.Data, s fitters.Settings, p *problem) (*config, error)
 	}
 
 	// Options, in name order so that the first bad one reported is stable.
-	names := make([]string, 0, len(s.Options))
-	for name := range s.Options {
-		names = append(names, name)
-	}
-	sort.Strings(names)
-	for _, name := range names {
+	for _, name := range settings.OptionNames(s.Options) {
 		val := s.Options[name]
 		var err error
 		switch name {
@@ -214,9 +137,9 @@ func resolve(data fitters.Data, s fitters.Settings, p *problem) (*config, error)
 				}
 			}
 		case OptWishartDOF:
-			cfg.nu0, err = parseNumber(name, val)
+			cfg.nu0, err = settings.Number(name, val)
 			if err == nil {
-				if cfg.structure == mixture.Full && !(cfg.nu0 > float64(d-1)) {
+				if cfg.Structure == mixture.Full && !(cfg.nu0 > float64(d-1)) {
 					err = invalid("option %q: value %q must exceed %d (the number of columns minus 1)", name, val, d-1)
 				} else if !(cfg.nu0 > 0) {
 					err = invalid("option %q: value %q must be positive", name, val)
@@ -234,7 +157,7 @@ func resolve(data fitters.Data, s fitters.Settings, p *problem) (*config, error)
 				err = invalid("option %q: value %q is not known (want %s or %s)", name, val, ServePredictive, ServePlugin)
 			}
 		case OptMinRows:
-			cfg.minRows, err = parsePositive(name, val)
+			cfg.minRows, err = settings.Positive(name, val)
 		default:
 			err = invalid("option %q is not recognised by the vb fitter (known options: %s)", name, strings.Join(optionNames, ", "))
 		}
@@ -251,10 +174,10 @@ func resolve(data fitters.Data, s fitters.Settings, p *problem) (*config, error)
 	}
 	if cfg.served == "" {
 		cfg.served = ServePredictive
-		if cfg.structure == mixture.Diagonal {
+		if cfg.Structure == mixture.Diagonal {
 			cfg.served = ServePlugin
 		}
-	} else if cfg.served == ServePredictive && cfg.structure == mixture.Diagonal {
+	} else if cfg.served == ServePredictive && cfg.Structure == mixture.Diagonal {
 		return nil, fitters.Errorf(fitters.Unimplemented,
 			"the predictive model of a diagonal structure is a product of univariate student_t densities, not a multivariate student_t mixture: with the diagonal structure use family gaussian or option %s=%s, or use the full or spherical structure", OptServedModel, ServePlugin)
 	}
@@ -273,75 +196,8 @@ func resolve(data fitters.Data, s fitters.Settings, p *problem) (*config, error)
 	}
 
 	// Start, labels and the number of components.
-	if s.Start != nil && s.Labels != nil {
-		return nil, invalid("start and labels are both set; give at most one")
-	}
-	if s.MaxComponents < 0 || s.MinComponents < 0 {
-		return nil, invalid("component range [%d, %d] has a negative bound", s.MinComponents, s.MaxComponents)
-	}
-	if s.MaxComponents > 0 {
-		if s.Start != nil || s.Labels != nil {
-			return nil, invalid("max components is set (choosing K) but start or labels fix K; give one or the other")
-		}
-		cfg.selecting = true
-		cfg.kMin, cfg.kMax = s.MinComponents, s.MaxComponents
-		if cfg.kMin == 0 {
-			cfg.kMin = 1
-		}
-		if cfg.kMin > cfg.kMax {
-			return nil, invalid("min components %d exceeds max components %d", cfg.kMin, cfg.kMax)
-		}
-	} else {
-		k := s.Components
-		switch {
-		case s.Start != nil:
-			if k == 0 {
-				k = len(s.Start.Components)
-			} else if k != len(s.Start.Components) {
-				return nil, invalid("components is %d but start has %d components", k, len(s.Start.Components))
-			}
-		case s.Labels != nil && k == 0:
-			for _, l := range s.Labels {
-				if l+1 > k {
-					k = l + 1
-				}
-			}
-		}
-		if k < 1 {
-			return nil, invalid("components %d must be at least 1", k)
-		}
-		cfg.kMin, cfg.kMax = k, k
-	}
-	if need := cfg.kMax; p.distinctAtLeast(need) < need {
-		return nil, fitters.Errorf(fitters.FailedPrecondition, "%d components requested but the data has only %d distinct rows with positive weight", need, p.distinctAtLeast(need))
-	}
-
-	cfg.startKind = "kmeans++"
-	switch {
-	case s.Start != nil:
-		st := s.Start
-		if st.Dim != d {
-			return nil, invalid("start: dim %d differs from the data's %d columns", st.Dim, d)
-		}
-		if err := st.Validate(); err != nil {
-			return nil, &fitters.Error{Code: fitters.InvalidArgument, Msg: "start", Err: err}
-		}
-		c := st.Clone()
-		cfg.start = &c
-		cfg.startKind = "params"
-		cfg.restarts = 1
-	case s.Labels != nil:
-		if len(s.Labels) != data.Rows {
-			return nil, invalid("labels: %d labels for %d rows", len(s.Labels), data.Rows)
-		}
-		for i, l := range s.Labels {
-			if l < 0 || l >= cfg.kMax {
-				return nil, invalid("labels: row %d has label %d, want 0..%d", i, l, cfg.kMax-1)
-			}
-		}
-		cfg.labels = append([]int(nil), s.Labels...)
-		cfg.startKind = "labels"
-		cfg.restarts = 1
+	if cfg.k, cfg.start, err = m.Starts(s, &p.Rows, settings.StartRules{}, &cfg.Basics); err != nil {
+		return nil, err
 	}
 	return cfg, nil
 }
@@ -349,7 +205,7 @@ func resolve(data fitters.Data, s fitters.Settings, p *problem) (*config, error)
 // parseInverseScale reads OptInverseScale for the structure.
 func (c *config) parseInverseScale(name, val string, d int) error {
 	var err error
-	switch c.structure {
+	switch c.Structure {
 	case mixture.Full:
 		c.s0, err = parseList(name, val, d*d, fmt.Sprintf("%d (a %dx%d matrix, row-major)", d*d, d, d))
 		if err == nil {
@@ -366,10 +222,10 @@ func (c *config) parseInverseScale(name, val string, d int) error {
 		return err
 	}
 	for i, v := range c.s0 {
-		if c.structure != mixture.Full && !(v > 0) {
+		if c.Structure != mixture.Full && !(v > 0) {
 			return invalid("option %q: value %d (%v) must be positive", name, i, v)
 		}
-		if a := math.Abs(v); a > MaxInverseScale || (a < MinInverseScale && (c.structure != mixture.Full || i%(d+1) == 0)) {
+		if a := math.Abs(v); a > MaxInverseScale || (a < MinInverseScale && (c.Structure != mixture.Full || i%(d+1) == 0)) {
 			return invalid("option %q: value %d (%v) is outside the supported magnitudes [%g, %g]", name, i, v, MinInverseScale, MaxInverseScale)
 		}
 	}
@@ -380,10 +236,10 @@ func (c *config) parseInverseScale(name, val string, d int) error {
 // defaultInverseScale fills s0 from the data when not given, adds the ridge
 // and checks that the result is usable.
 func (c *config) defaultInverseScale(p *problem) error {
-	d := p.d
+	d := p.D
 	if c.s0 == nil {
 		c.s0Text = "data covariance"
-		switch c.structure {
+		switch c.Structure {
 		case mixture.Full:
 			c.s0 = append([]float64(nil), p.cov...)
 		case mixture.Diagonal:
@@ -402,7 +258,7 @@ func (c *config) defaultInverseScale(p *problem) error {
 		}
 	}
 	if c.ridge > 0 {
-		switch c.structure {
+		switch c.Structure {
 		case mixture.Full:
 			for j := 0; j < d; j++ {
 				c.s0[j*d+j] += c.ridge
@@ -414,7 +270,7 @@ func (c *config) defaultInverseScale(p *problem) error {
 		}
 		c.s0Text += fmt.Sprintf(" + ridge %s", fmtFloat(c.ridge))
 	}
-	if c.structure == mixture.Full {
+	if c.Structure == mixture.Full {
 		if err := mixture.CheckCovariance(c.s0, d); err != nil {
 			return fitters.Errorf(fitters.FailedPrecondition,
 				"prior: the Wishart inverse scale (%s) is unusable: %v; the features are (nearly) linearly dependent: drop a redundant column, use a positive ridge or set option %q", c.s0Text, err, OptInverseScale)
@@ -433,7 +289,7 @@ func (c *config) priorFor(p *problem, k int) (*prior, error) {
 		nu0:     c.nu0,
 		s0:      c.s0,
 	}
-	if !pr.setup(c.structure, p.d) {
+	if !pr.setup(c.Structure, p.D) {
 		return nil, fitters.Errorf(fitters.FailedPrecondition, "prior: the Wishart inverse scale (%s) is not positive definite", c.s0Text)
 	}
 	return pr, nil
@@ -452,39 +308,22 @@ func (c *config) alphaFor(k int) float64 {
 
 // echo returns the effective settings by name.
 func (c *config) echo(p *problem, k int) map[string]string {
-	m := map[string]string{
-		"family":         mixture.Gaussian.String(),
-		"structure":      c.structure.String(),
-		"components":     strconv.Itoa(k),
-		"seed":           strconv.FormatUint(c.seed, 10),
-		"max_iterations": strconv.Itoa(c.maxIter),
-		"tolerance":      fmtFloat(c.tol),
-		"restarts":       strconv.Itoa(c.restarts),
-		"ridge":          fmtFloat(c.ridge),
-		"start":          c.startKind,
-		OptWeightPrior:   c.weights.String(),
-		OptConcentration: fmtFloat(c.alphaFor(k)),
-		OptMeanStrength:  fmtFloat(c.beta0),
-		OptPriorMean:     joinFloats(c.m0),
-		OptWishartDOF:    fmtFloat(c.nu0),
-		OptInverseScale:  joinFloats(c.s0),
-		// Where the inverse scale came from (it includes the ridge).
-		"wishart_inverse_scale_source": c.s0Text,
-		OptServedModel:                 c.served,
-		OptMinRows:                     fmtFloat(c.minRows),
-	}
-	if c.maxIter == 0 {
-		m["max_iterations"] = "0 (evaluate the start only)"
-	}
-	if c.selecting {
-		m["criterion"] = c.criterion.String()
-		m["min_components"] = strconv.Itoa(c.kMin)
-		m["max_components"] = strconv.Itoa(c.kMax)
-	}
+	m := settings.Echo(mixture.Gaussian, c.Basics, k, c.seed, fmtFloat(c.ridge), c.start.Kind)
+	m[OptWeightPrior] = c.weights.String()
+	m[OptConcentration] = fmtFloat(c.alphaFor(k))
+	m[OptMeanStrength] = fmtFloat(c.beta0)
+	m[OptPriorMean] = joinFloats(c.m0)
+	m[OptWishartDOF] = fmtFloat(c.nu0)
+	m[OptInverseScale] = joinFloats(c.s0)
+	// Where the inverse scale came from (it includes the ridge).
+	m["wishart_inverse_scale_source"] = c.s0Text
+	m[OptServedModel] = c.served
+	m[OptMinRows] = fmtFloat(c.minRows)
+	settings.EchoRange(m, c.k, c.Criterion, "components_min", "components_max")
 	return m
 }
 
-func fmtFloat(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+func fmtFloat(v float64) string { return settings.Float(v) }
 
 // joinFloats formats v as comma-separated shortest round-trip values, the
 // form the list options accept.

@@ -3,10 +3,9 @@ package vb
 import (
 	"math"
 	"runtime"
-	"sync"
-	"sync/atomic"
 
 	"github.com/mixd-dev/mixd/fitters"
+	"github.com/mixd-dev/mixd/fitters/internal/loop"
 	"github.com/mixd-dev/mixd/fitters/mixture"
 )
 
@@ -200,20 +199,20 @@ func (e *engine) scatLen() int {
 }
 
 func newEngine(p *problem, pr *prior, s mixture.Structure, k int) *engine {
-	e := &engine{p: p, pr: pr, s: s, k: k, d: p.d}
-	e.r = make([]float64, p.n*k)
-	e.nchunks = (p.n + chunkRows - 1) / chunkRows
+	e := &engine{p: p, pr: pr, s: s, k: k, d: p.D}
+	e.r = make([]float64, p.N*k)
+	e.nchunks = (p.N + chunkRows - 1) / chunkRows
 	e.workers = 1
-	if p.n >= parallelMinRows {
+	if p.N >= parallelMinRows {
 		e.workers = min(runtime.GOMAXPROCS(0), e.nchunks)
 	}
 	e.ws = make([]*scratch, e.workers)
 	for i := range e.ws {
-		e.ws[i] = &scratch{diff: make([]float64, p.d), y: make([]float64, p.d), diffAll: make([]float64, k*p.d), lr: make([]float64, k), ev: make([]float64, k)}
+		e.ws[i] = &scratch{diff: make([]float64, p.D), y: make([]float64, p.D), diffAll: make([]float64, k*p.D), lr: make([]float64, k), ev: make([]float64, k)}
 	}
-	e.sumBuf = make([]float64, e.nchunks*(k+k*p.d+1))
+	e.sumBuf = make([]float64, e.nchunks*(k+k*p.D+1))
 	e.scatBuf = make([]float64, e.nchunks*k*e.scatLen())
-	e.fusedBuf = make([]float64, e.nchunks*(k+k*p.d+1+k*e.scatLen()))
+	e.fusedBuf = make([]float64, e.nchunks*(k+k*p.D+1+k*e.scatLen()))
 	return e
 }
 
@@ -233,31 +232,9 @@ func newStats(k, d int, s mixture.Structure) *stats {
 // parallel calls fn for every chunk, on up to e.workers goroutines. Each
 // chunk's result depends only on its own rows.
 func (e *engine) parallel(fn func(ws *scratch, c, lo, hi int)) {
-	bounds := func(c int) (int, int) { return c * chunkRows, min((c+1)*chunkRows, e.p.n) }
-	if e.workers <= 1 {
-		for c := 0; c < e.nchunks; c++ {
-			lo, hi := bounds(c)
-			fn(e.ws[0], c, lo, hi)
-		}
-		return
-	}
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for w := 0; w < e.workers; w++ {
-		wg.Add(1)
-		go func(ws *scratch) {
-			defer wg.Done()
-			for {
-				c := int(next.Add(1) - 1)
-				if c >= e.nchunks {
-					return
-				}
-				lo, hi := bounds(c)
-				fn(ws, c, lo, hi)
-			}
-		}(e.ws[w])
-	}
-	wg.Wait()
+	loop.Parallel(e.workers, e.nchunks, func(w, c int) {
+		fn(e.ws[w], c, c*chunkRows, min((c+1)*chunkRows, e.p.N))
+	})
 }
 
 // estep sets the responsibilities from q (Bishop 2006, eqs. 10.46–10.49 with
@@ -280,7 +257,7 @@ func (e *engine) estep(q *posterior, st *stats) error {
 		nk, sx, sxx := buf[:k], buf[k:k+k*d], buf[k+k*d+1:]
 		var rl float64
 		for i := lo; i < hi; i++ {
-			x := e.p.row(i)
+			x := e.p.Row(i)
 			for c := 0; c < k; c++ {
 				mc := q.m[c*d : (c+1)*d]
 				diff := ws.diffAll[c*d : (c+1)*d]
@@ -319,7 +296,7 @@ func (e *engine) estep(q *posterior, st *stats) error {
 			}
 			inv := 1 / sum
 			ri := e.r[i*k : (i+1)*k]
-			w := e.p.weight(i)
+			w := e.p.Weight(i)
 			for c, v := range ws.lr {
 				l := v - lse
 				rv := ws.ev[c] * inv
@@ -432,11 +409,11 @@ func (e *engine) accumulate(st *stats) {
 		nk, sx := buf[:k], buf[k:k+k*d]
 		var rl float64
 		for i := lo; i < hi; i++ {
-			w := e.p.weight(i)
+			w := e.p.Weight(i)
 			if w == 0 {
 				continue
 			}
-			x := e.p.row(i)
+			x := e.p.Row(i)
 			for c, rv := range e.r[i*k : (i+1)*k] {
 				if rv <= 0 {
 					continue
@@ -499,11 +476,11 @@ func (e *engine) finish(st *stats) {
 		sb := e.scatBuf[ch*k*sl : (ch+1)*k*sl]
 		clear(sb)
 		for i := lo; i < hi; i++ {
-			w := e.p.weight(i)
+			w := e.p.Weight(i)
 			if w == 0 {
 				continue
 			}
-			x := e.p.row(i)
+			x := e.p.Row(i)
 			for c, rv := range e.r[i*k : (i+1)*k] {
 				wr := w * rv
 				if wr == 0 || st.nk[c] == 0 {

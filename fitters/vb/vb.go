@@ -9,6 +9,8 @@ import (
 	"time"
 
 	"github.com/mixd-dev/mixd/fitters"
+	"github.com/mixd-dev/mixd/fitters/internal/loop"
+	"github.com/mixd-dev/mixd/fitters/internal/settings"
 	"github.com/mixd-dev/mixd/fitters/mixture"
 )
 
@@ -69,20 +71,25 @@ var _ fitters.Fitter = (*Fitter)(nil)
 // New returns a variational Bayesian fitter.
 func New() *Fitter { return &Fitter{} }
 
+// method describes this fitter to the shared settings resolution.
+func method() settings.Method {
+	return settings.Method{
+		Name:       Name,
+		Structures: []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical},
+		Defaults:   settings.Defaults{MaxIterations: DefaultMaxIterations, Tolerance: DefaultTolerance, Restarts: DefaultRestarts},
+		Style:      settings.Plain,
+	}
+}
+
 // Describe reports the estimator's name, version, supported families and
 // structures, and its method-specific options.
 func (f *Fitter) Describe(ctx context.Context) (fitters.Info, error) {
-	if err := fitters.ContextError(ctx); err != nil {
-		return fitters.Info{}, err
-	}
-	return fitters.Info{
-		Name:    Name,
+	return method().Describe(ctx, fitters.Info{
 		Version: Version,
 		Description: "Variational Bayes for Gaussian mixtures (Dirichlet or stick-breaking weights, " +
 			"Normal-Wishart components): surplus components shrink to their prior; serves the " +
 			"posterior predictive Student-t mixture (family student_t) or the plug-in Gaussian mixture (family gaussian)",
-		Families:   []mixture.Family{mixture.Gaussian, mixture.StudentT},
-		Structures: []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical},
+		Families: []mixture.Family{mixture.Gaussian, mixture.StudentT},
 		Options: []fitters.OptionInfo{
 			{Name: OptWeightPrior, Description: "prior on the weights: dirichlet (finite, symmetric) or stick_breaking (truncated Dirichlet process)", Default: "dirichlet"},
 			{Name: OptConcentration, Description: "concentration of the weight prior (a positive number); small values favour few components", Default: "1/K for dirichlet, 1 for stick_breaking"},
@@ -93,7 +100,7 @@ func (f *Fitter) Describe(ctx context.Context) (fitters.Info, error) {
 			{Name: OptServedModel, Description: "model stored and served: predictive (posterior predictive Student-t mixture) or plugin (Gaussian mixture at the expected precisions); a requested family (student_t or gaussian) chooses the same way", Default: "from the family if given; otherwise predictive for full and spherical, plugin for diagonal"},
 			{Name: OptMinRows, Description: "expected row count from which a component counts as effective (a positive number)", Default: "D+1"},
 		},
-	}, nil
+	})
 }
 
 // Posterior is a fitted variational distribution q(π) Π_k q(μ_k, Λ_k), in the
@@ -150,48 +157,18 @@ func (f *Fitter) FitPosterior(ctx context.Context, data fitters.Data, s fitters.
 	}
 	rng := rand.New(rand.NewPCG(cfg.seed, seedStream))
 
-	var (
-		best      *kResult
-		selection []fitters.SelectionRow
-	)
-	for k := cfg.kMin; k <= cfg.kMax; k++ {
-		kr, err := prob.fitK(ctx, cfg, k, rng, began, progress)
-		if err != nil {
-			return nil, nil, err
-		}
-		if cfg.selecting {
-			selection = append(selection, fitters.SelectionRow{
-				Components:    k,
-				LogLikelihood: kr.logLik,
-				BIC:           kr.bic,
-				AIC:           kr.aic,
-				Converged:     kr.run.converged,
-				Iterations:    kr.run.iterations,
-			})
-		}
-		if best == nil || kr.score(cfg.criterion) < best.score(cfg.criterion) {
-			best = kr
-		}
+	best, selection, err := loop.ChooseK(cfg.k.Min, cfg.k.Max, cfg.k.Selecting, cfg.Criterion, func(k int) (*kResult, error) {
+		return prob.fitK(ctx, cfg, k, rng, began, progress)
+	})
+	if err != nil {
+		return nil, nil, err
 	}
-	rep := fitters.Report{
-		Iterations:          best.run.iterations,
-		Converged:           best.run.converged,
-		Objective:           "variational_bound",
-		LogLikelihood:       best.logLik,
-		Bound:               best.run.bound,
-		BIC:                 best.bic,
-		AIC:                 best.aic,
-		History:             best.run.history,
-		Selection:           selection,
-		EffectiveComponents: best.effective,
-		Notes:               best.notes,
-		Settings:            cfg.echo(prob, best.k),
-	}
-	if cfg.selecting {
-		rep.Notes = append(rep.Notes, fmt.Sprintf("K=%d has the lowest %s of K=%d..%d",
-			best.k, strings.ToUpper(cfg.criterion.String()), cfg.kMin, cfg.kMax))
-	}
-	return &fitters.Result{Params: best.params, Report: rep}, best.run.export(prob.d, cfg), nil
+	rep := best.Report("variational_bound", best.run.history, selection)
+	rep.Bound = best.run.bound
+	rep.EffectiveComponents = best.effective
+	rep.Notes = append(best.notes, cfg.k.Chosen(best.k, cfg.Criterion)...)
+	rep.Settings = cfg.echo(prob, best.k)
+	return &fitters.Result{Params: best.params, Report: rep}, best.run.export(prob.D, cfg), nil
 }
 
 // seedStream is the fixed second PCG word; the first is Settings.Seed.
@@ -210,20 +187,12 @@ type runResult struct {
 
 // kResult is the best restart for one K with its served model.
 type kResult struct {
+	loop.Outcome
 	k         int
 	run       *runResult
 	params    mixture.Params
-	logLik    float64
-	bic, aic  float64
 	effective int
 	notes     []string
-}
-
-func (r *kResult) score(c fitters.Criterion) float64 {
-	if c == fitters.AIC {
-		return r.aic
-	}
-	return r.bic
 }
 
 // fitK runs every restart for k components, keeps the one with the highest
@@ -233,22 +202,19 @@ func (p *problem) fitK(ctx context.Context, cfg *config, k int, rng *rand.Rand, 
 	if err != nil {
 		return nil, err
 	}
-	e := newEngine(p, pr, cfg.structure, k)
-	var best *runResult
-	for r := 0; r < cfg.restarts; r++ {
-		if err := fitters.ContextError(ctx); err != nil {
-			return nil, err
-		}
+	e := newEngine(p, pr, cfg.Structure, k)
+	best, _, err := loop.Restarts(ctx, cfg.Restarts, func(r int) (*runResult, float64, error) {
 		if err := e.startResp(cfg, rng); err != nil {
-			return nil, err
+			return nil, 0, err
 		}
 		run, err := e.run(ctx, cfg, r, began, progress)
 		if err != nil {
-			return nil, err
+			return nil, 0, err
 		}
-		if best == nil || run.bound > best.bound {
-			best = run
-		}
+		return run, run.bound, nil
+	})
+	if err != nil {
+		return nil, err
 	}
 	return p.serve(cfg, k, best)
 }
@@ -259,17 +225,17 @@ func (p *problem) fitK(ctx context.Context, cfg *config, k int, rng *rand.Rand, 
 func (e *engine) startResp(cfg *config, rng *rand.Rand) error {
 	k := e.k
 	switch {
-	case cfg.start != nil:
-		m, err := mixture.New(*cfg.start)
+	case cfg.start.Params != nil:
+		m, err := mixture.New(*cfg.start.Params)
 		if err != nil {
 			return &fitters.Error{Code: fitters.InvalidArgument, Msg: "start", Err: err}
 		}
-		if err := m.Posteriors(e.p.x, nil, e.r, nil); err != nil {
+		if err := m.Posteriors(e.p.X, nil, e.r, nil); err != nil {
 			return fitters.Errorf(fitters.Internal, "vb: posteriors of the start: %v", err)
 		}
 		return nil
-	case cfg.labels != nil:
-		return e.oneHot(cfg.labels)
+	case cfg.start.Labels != nil:
+		return e.oneHot(cfg.start.Labels)
 	}
 	seeds, err := e.p.kmeansPP(k, rng)
 	if err != nil {
@@ -284,7 +250,7 @@ func (e *engine) oneHot(labels []int) error {
 	seen := make([]bool, k)
 	for i, l := range labels {
 		e.r[i*k+l] = 1
-		if e.p.weight(i) > 0 {
+		if e.p.Weight(i) > 0 {
 			seen[l] = true
 		}
 	}
@@ -312,7 +278,7 @@ func (e *engine) run(ctx context.Context, cfg *config, restart int, began time.T
 		return nil, fitters.Errorf(fitters.Internal, "vb: the bound at the start is %v", prev)
 	}
 	res := &runResult{q: q, st: st, bound: prev, restart: restart}
-	for t := 1; t <= cfg.maxIter; t++ {
+	for t := 1; t <= cfg.MaxIter; t++ {
 		if err := fitters.ContextError(ctx); err != nil {
 			return nil, err
 		}
@@ -332,7 +298,7 @@ func (e *engine) run(ctx context.Context, cfg *config, restart int, began time.T
 		if progress != nil {
 			progress(fitters.Progress{Components: e.k, Restart: restart, Iteration: t, Objective: b, Elapsed: time.Since(began)})
 		}
-		if math.Abs(b-prev) <= cfg.tol*math.Abs(b) {
+		if math.Abs(b-prev) <= cfg.Tol*math.Abs(b) {
 			res.converged = true
 			break
 		}
@@ -343,8 +309,8 @@ func (e *engine) run(ctx context.Context, cfg *config, restart int, began time.T
 
 // serve turns the best run into the served model and its report fields.
 func (p *problem) serve(cfg *config, k int, run *runResult) (*kResult, error) {
-	q, st, d := run.q, run.st, p.d
-	params := mixture.Params{Dim: d, Family: mixture.Gaussian, Structure: cfg.structure}
+	q, st, d := run.q, run.st, p.D
+	params := mixture.Params{Dim: d, Family: mixture.Gaussian, Structure: cfg.Structure}
 	predictive := cfg.served == ServePredictive
 	if predictive {
 		params.Family = mixture.StudentT
@@ -366,7 +332,7 @@ func (p *problem) serve(cfg *config, k int, run *runResult) (*kResult, error) {
 			Cov:    make([]float64, d*d),
 		}
 		beta := q.beta[c]
-		switch cfg.structure {
+		switch cfg.Structure {
 		case mixture.Full:
 			nu := q.nu[c]
 			wi := q.winv[c*d*d : (c+1)*d*d]
@@ -413,20 +379,21 @@ func (p *problem) serve(cfg *config, k int, run *runResult) (*kResult, error) {
 	if err != nil {
 		return nil, fitters.Errorf(fitters.FailedPrecondition, "the served parameters for K=%d are not usable (%v): the prior (options %q, %q, %q) is too far from the data or too ill-conditioned", k, err, OptPriorMean, OptMeanStrength, OptInverseScale)
 	}
-	ll, err := model.LogLikelihood(p.x, p.w)
+	ll, err := loop.LogLikelihood(model, p.X, p.W, Name, "the served model")
 	if err != nil {
-		return nil, fitters.Errorf(fitters.Internal, "vb: log-likelihood of the served model: %v", err)
-	}
-	if math.IsNaN(ll) || math.IsInf(ll, 0) {
-		return nil, fitters.Errorf(fitters.Internal, "vb: log-likelihood of the served model is %v", ll)
+		return nil, err
 	}
 	kr := &kResult{
+		Outcome: loop.Outcome{
+			LogLik:     ll,
+			BIC:        model.BIC(ll, p.wsum),
+			AIC:        model.AIC(ll),
+			Converged:  run.converged,
+			Iterations: run.iterations,
+		},
 		k:         k,
 		run:       run,
 		params:    params,
-		logLik:    ll,
-		bic:       model.BIC(ll, p.wsum),
-		aic:       model.AIC(ll),
 		effective: k - len(small),
 	}
 	what := "the posterior predictive mixture (student_t components)"
@@ -442,12 +409,7 @@ func (p *problem) serve(cfg *config, k int, run *runResult) (*kResult, error) {
 		kr.notes = append(kr.notes, fmt.Sprintf("components %s have an expected weight below %g and are left out of the served model; the other weights are renormalised",
 			listInts(dropped), MinServedWeight))
 	}
-	if cfg.restarts > 1 {
-		kr.notes = append(kr.notes, fmt.Sprintf("restart %d of %d gave the highest bound", run.restart+1, cfg.restarts))
-	}
-	if !run.converged && cfg.maxIter > 0 {
-		kr.notes = append(kr.notes, fmt.Sprintf("stopped after %d iterations without meeting the tolerance", run.iterations))
-	}
+	kr.notes = append(kr.notes, loop.EndNotes(run.restart, cfg.Restarts, "bound", run.iterations, cfg.MaxIter, run.converged)...)
 	return kr, nil
 }
 

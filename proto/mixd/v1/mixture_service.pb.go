@@ -750,7 +750,14 @@ type ScoreRequest struct {
 	ResponseEncoding MatrixEncoding `protobuf:"varint,5,opt,name=response_encoding,json=responseEncoding,proto3,enum=mixd.v1.MatrixEncoding" json:"response_encoding,omitempty"`
 	// Tail probability level of the outlier rule for Student-t models; 0 means
 	// the level stored with the model.
-	OutlierLevel  float64 `protobuf:"fixed64,6,opt,name=outlier_level,json=outlierLevel,proto3" json:"outlier_level,omitempty"`
+	OutlierLevel float64 `protobuf:"fixed64,6,opt,name=outlier_level,json=outlierLevel,proto3" json:"outlier_level,omitempty"`
+	// Which values of `rows` are observed: rows*cols bytes, row-major, 1 for
+	// observed and 0 for unobserved (any other byte is rejected). Empty means
+	// every value is observed. Rows are then evaluated under the marginal
+	// mixture of their observed features (exact for Gaussian and Student-t
+	// components). Values at unobserved positions are ignored but must still
+	// be finite (send 0): NaN is never a missing-value marker.
+	ObservedMask  []byte `protobuf:"bytes,7,opt,name=observed_mask,json=observedMask,proto3" json:"observed_mask,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -827,6 +834,13 @@ func (x *ScoreRequest) GetOutlierLevel() float64 {
 	return 0
 }
 
+func (x *ScoreRequest) GetObservedMask() []byte {
+	if x != nil {
+		return x.ObservedMask
+	}
+	return nil
+}
+
 // ScoreResponse holds per-row scores.
 type ScoreResponse struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -837,7 +851,9 @@ type ScoreResponse struct {
 	// Mixture log-density of each row (rows x 1).
 	LogDensities *Matrix `protobuf:"bytes,3,opt,name=log_densities,json=logDensities,proto3" json:"log_densities,omitempty"`
 	// Percentile in [0, 100] of each row's log-density among the training rows'
-	// (rows x 1): 0.1 means rarer than 99.9% of training rows.
+	// (rows x 1): 0.1 means rarer than 99.9% of training rows. NaN for rows
+	// with an unobserved feature: a marginal log-density is not comparable with
+	// the training rows' full log-densities.
 	Percentiles *Matrix `protobuf:"bytes,4,opt,name=percentiles,proto3" json:"percentiles,omitempty"`
 	// Component log-densities (rows x K), when asked for.
 	ComponentLogDensities *Matrix `protobuf:"bytes,5,opt,name=component_log_densities,json=componentLogDensities,proto3" json:"component_log_densities,omitempty"`
@@ -956,7 +972,10 @@ type ScoreStreamRequest struct {
 	ResponseEncoding MatrixEncoding `protobuf:"varint,5,opt,name=response_encoding,json=responseEncoding,proto3,enum=mixd.v1.MatrixEncoding" json:"response_encoding,omitempty"`
 	// Tail probability level of the outlier rule for Student-t models; 0 means
 	// the level stored with the model.
-	OutlierLevel  float64 `protobuf:"fixed64,6,opt,name=outlier_level,json=outlierLevel,proto3" json:"outlier_level,omitempty"`
+	OutlierLevel float64 `protobuf:"fixed64,6,opt,name=outlier_level,json=outlierLevel,proto3" json:"outlier_level,omitempty"`
+	// Which values of this chunk's rows are observed (see
+	// ScoreRequest.observed_mask); read from every message, empty meaning all.
+	ObservedMask  []byte `protobuf:"bytes,7,opt,name=observed_mask,json=observedMask,proto3" json:"observed_mask,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1031,6 +1050,13 @@ func (x *ScoreStreamRequest) GetOutlierLevel() float64 {
 		return x.OutlierLevel
 	}
 	return 0
+}
+
+func (x *ScoreStreamRequest) GetObservedMask() []byte {
+	if x != nil {
+		return x.ObservedMask
+	}
+	return nil
 }
 
 // ScoreStreamResponse holds the scores of one chunk.
@@ -1160,8 +1186,11 @@ type ClassifyRequest struct {
 	IncludePosteriors bool `protobuf:"varint,5,opt,name=include_posteriors,json=includePosteriors,proto3" json:"include_posteriors,omitempty"`
 	// Encoding of returned matrices and labels.
 	ResponseEncoding MatrixEncoding `protobuf:"varint,6,opt,name=response_encoding,json=responseEncoding,proto3,enum=mixd.v1.MatrixEncoding" json:"response_encoding,omitempty"`
-	unknownFields    protoimpl.UnknownFields
-	sizeCache        protoimpl.SizeCache
+	// Which values of `rows` are observed (see ScoreRequest.observed_mask);
+	// posteriors are then those given the observed features only.
+	ObservedMask  []byte `protobuf:"bytes,7,opt,name=observed_mask,json=observedMask,proto3" json:"observed_mask,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ClassifyRequest) Reset() {
@@ -1234,6 +1263,13 @@ func (x *ClassifyRequest) GetResponseEncoding() MatrixEncoding {
 		return x.ResponseEncoding
 	}
 	return MatrixEncoding_MATRIX_ENCODING_UNSPECIFIED
+}
+
+func (x *ClassifyRequest) GetObservedMask() []byte {
+	if x != nil {
+		return x.ObservedMask
+	}
+	return nil
 }
 
 // ClassifyResponse holds per-row assignments.
@@ -1343,8 +1379,11 @@ type ClassifyStreamRequest struct {
 	IncludePosteriors bool `protobuf:"varint,5,opt,name=include_posteriors,json=includePosteriors,proto3" json:"include_posteriors,omitempty"`
 	// Encoding of returned matrices and labels.
 	ResponseEncoding MatrixEncoding `protobuf:"varint,6,opt,name=response_encoding,json=responseEncoding,proto3,enum=mixd.v1.MatrixEncoding" json:"response_encoding,omitempty"`
-	unknownFields    protoimpl.UnknownFields
-	sizeCache        protoimpl.SizeCache
+	// Which values of this chunk's rows are observed (see
+	// ScoreRequest.observed_mask); read from every message, empty meaning all.
+	ObservedMask  []byte `protobuf:"bytes,7,opt,name=observed_mask,json=observedMask,proto3" json:"observed_mask,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ClassifyStreamRequest) Reset() {
@@ -1417,6 +1456,13 @@ func (x *ClassifyStreamRequest) GetResponseEncoding() MatrixEncoding {
 		return x.ResponseEncoding
 	}
 	return MatrixEncoding_MATRIX_ENCODING_UNSPECIFIED
+}
+
+func (x *ClassifyStreamRequest) GetObservedMask() []byte {
+	if x != nil {
+		return x.ObservedMask
+	}
+	return nil
 }
 
 // ClassifyStreamResponse holds the assignments of one chunk.
@@ -1829,6 +1875,645 @@ func (x *SampleStreamResponse) GetComponents() *Labels {
 	return nil
 }
 
+// PredictRequest asks for the conditional distribution of unobserved
+// features. At most `mixd serve --max-rows` rows per request, and at most that
+// many rows x draws; larger batches are split by the caller (set first_row so
+// that draws do not depend on the split).
+type PredictRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// "models/{model}" or "{model}".
+	Model string `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// Version; 0 means newest.
+	Version int64 `protobuf:"varint,2,opt,name=version,proto3" json:"version,omitempty"`
+	// Rows (cols must equal the model's dimension).
+	Rows *Matrix `protobuf:"bytes,3,opt,name=rows,proto3" json:"rows,omitempty"`
+	// Which values are observed, as in ScoreRequest.observed_mask; the others
+	// are predicted. Empty means every value is observed (nothing to predict).
+	ObservedMask []byte `protobuf:"bytes,4,opt,name=observed_mask,json=observedMask,proto3" json:"observed_mask,omitempty"`
+	// Also return the conditional standard deviation of every feature.
+	IncludeStandardDeviations bool `protobuf:"varint,5,opt,name=include_standard_deviations,json=includeStandardDeviations,proto3" json:"include_standard_deviations,omitempty"`
+	// Also return each row's conditional covariance matrix.
+	IncludeCovariances bool `protobuf:"varint,6,opt,name=include_covariances,json=includeCovariances,proto3" json:"include_covariances,omitempty"`
+	// Also return the per-component parts: posteriors (the conditional
+	// weights), conditional means and, for Student-t models, degrees of freedom.
+	IncludeComponents bool `protobuf:"varint,7,opt,name=include_components,json=includeComponents,proto3" json:"include_components,omitempty"`
+	// Also return each component's conditional covariance (Gaussian) or scale
+	// (Student-t) matrix.
+	IncludeComponentScales bool `protobuf:"varint,8,opt,name=include_component_scales,json=includeComponentScales,proto3" json:"include_component_scales,omitempty"`
+	// Completed rows to draw from each row's conditional distribution
+	// (multiple imputation); 0 draws none.
+	Draws int32 `protobuf:"varint,9,opt,name=draws,proto3" json:"draws,omitempty"`
+	// Seed of the draws.
+	Seed uint64 `protobuf:"varint,10,opt,name=seed,proto3" json:"seed,omitempty"`
+	// Index of rows[0] in the caller's whole batch: row i's draws use a stream
+	// fixed by (seed, first_row + i), so a batch split over several requests
+	// gets the same draws as one request.
+	FirstRow int64 `protobuf:"varint,11,opt,name=first_row,json=firstRow,proto3" json:"first_row,omitempty"`
+	// Encoding of returned matrices.
+	ResponseEncoding MatrixEncoding `protobuf:"varint,12,opt,name=response_encoding,json=responseEncoding,proto3,enum=mixd.v1.MatrixEncoding" json:"response_encoding,omitempty"`
+	unknownFields    protoimpl.UnknownFields
+	sizeCache        protoimpl.SizeCache
+}
+
+func (x *PredictRequest) Reset() {
+	*x = PredictRequest{}
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[24]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *PredictRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*PredictRequest) ProtoMessage() {}
+
+func (x *PredictRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[24]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use PredictRequest.ProtoReflect.Descriptor instead.
+func (*PredictRequest) Descriptor() ([]byte, []int) {
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{24}
+}
+
+func (x *PredictRequest) GetModel() string {
+	if x != nil {
+		return x.Model
+	}
+	return ""
+}
+
+func (x *PredictRequest) GetVersion() int64 {
+	if x != nil {
+		return x.Version
+	}
+	return 0
+}
+
+func (x *PredictRequest) GetRows() *Matrix {
+	if x != nil {
+		return x.Rows
+	}
+	return nil
+}
+
+func (x *PredictRequest) GetObservedMask() []byte {
+	if x != nil {
+		return x.ObservedMask
+	}
+	return nil
+}
+
+func (x *PredictRequest) GetIncludeStandardDeviations() bool {
+	if x != nil {
+		return x.IncludeStandardDeviations
+	}
+	return false
+}
+
+func (x *PredictRequest) GetIncludeCovariances() bool {
+	if x != nil {
+		return x.IncludeCovariances
+	}
+	return false
+}
+
+func (x *PredictRequest) GetIncludeComponents() bool {
+	if x != nil {
+		return x.IncludeComponents
+	}
+	return false
+}
+
+func (x *PredictRequest) GetIncludeComponentScales() bool {
+	if x != nil {
+		return x.IncludeComponentScales
+	}
+	return false
+}
+
+func (x *PredictRequest) GetDraws() int32 {
+	if x != nil {
+		return x.Draws
+	}
+	return 0
+}
+
+func (x *PredictRequest) GetSeed() uint64 {
+	if x != nil {
+		return x.Seed
+	}
+	return 0
+}
+
+func (x *PredictRequest) GetFirstRow() int64 {
+	if x != nil {
+		return x.FirstRow
+	}
+	return 0
+}
+
+func (x *PredictRequest) GetResponseEncoding() MatrixEncoding {
+	if x != nil {
+		return x.ResponseEncoding
+	}
+	return MatrixEncoding_MATRIX_ENCODING_UNSPECIFIED
+}
+
+// PredictResponse holds the conditional distribution of each row's
+// unobserved features: a mixture whose weights are the posteriors given the
+// observed features and whose components are the components' conditionals
+// (Gaussian: Schur complement; Student-t: Student-t with nu + observed
+// degrees of freedom).
+type PredictResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// "models/{model}".
+	Model string `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// The version used.
+	Version int64 `protobuf:"varint,2,opt,name=version,proto3" json:"version,omitempty"`
+	// Each row with its unobserved features replaced by their conditional mean
+	// (rows x dimension); observed values are copied.
+	Means *Matrix `protobuf:"bytes,3,opt,name=means,proto3" json:"means,omitempty"`
+	// Conditional standard deviations (rows x dimension; 0 for observed
+	// features), when asked for.
+	StandardDeviations *Matrix `protobuf:"bytes,4,opt,name=standard_deviations,json=standardDeviations,proto3" json:"standard_deviations,omitempty"`
+	// Conditional covariance matrices, one row-major dimension*dimension block
+	// per row (rows x dimension^2; zero rows and columns for observed
+	// features), when asked for. By the law of total covariance over the
+	// conditional components.
+	Covariances *Matrix `protobuf:"bytes,5,opt,name=covariances,proto3" json:"covariances,omitempty"`
+	// Log-density of each row's observed features under the marginal mixture
+	// (rows x 1; 0 for a row with nothing observed).
+	LogDensities *Matrix `protobuf:"bytes,6,opt,name=log_densities,json=logDensities,proto3" json:"log_densities,omitempty"`
+	// Conditional weights of the components (rows x K), with components.
+	Posteriors *Matrix `protobuf:"bytes,7,opt,name=posteriors,proto3" json:"posteriors,omitempty"`
+	// Conditional mean of each component, observed values copied
+	// (rows x K*dimension, component-major within a row), with components.
+	ComponentMeans *Matrix `protobuf:"bytes,8,opt,name=component_means,json=componentMeans,proto3" json:"component_means,omitempty"`
+	// Conditional degrees of freedom of each Student-t component
+	// (rows x K), with components.
+	ComponentDegreesOfFreedom *Matrix `protobuf:"bytes,9,opt,name=component_degrees_of_freedom,json=componentDegreesOfFreedom,proto3" json:"component_degrees_of_freedom,omitempty"`
+	// Conditional covariance or scale matrix of each component
+	// (rows x K*dimension^2), when asked for.
+	ComponentScales *Matrix `protobuf:"bytes,10,opt,name=component_scales,json=componentScales,proto3" json:"component_scales,omitempty"`
+	// Drawn completed rows ((rows*draws) x dimension): the draws of row i are
+	// rows i*draws .. (i+1)*draws-1; observed values are copied.
+	Draws         *Matrix `protobuf:"bytes,11,opt,name=draws,proto3" json:"draws,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *PredictResponse) Reset() {
+	*x = PredictResponse{}
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[25]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *PredictResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*PredictResponse) ProtoMessage() {}
+
+func (x *PredictResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[25]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use PredictResponse.ProtoReflect.Descriptor instead.
+func (*PredictResponse) Descriptor() ([]byte, []int) {
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{25}
+}
+
+func (x *PredictResponse) GetModel() string {
+	if x != nil {
+		return x.Model
+	}
+	return ""
+}
+
+func (x *PredictResponse) GetVersion() int64 {
+	if x != nil {
+		return x.Version
+	}
+	return 0
+}
+
+func (x *PredictResponse) GetMeans() *Matrix {
+	if x != nil {
+		return x.Means
+	}
+	return nil
+}
+
+func (x *PredictResponse) GetStandardDeviations() *Matrix {
+	if x != nil {
+		return x.StandardDeviations
+	}
+	return nil
+}
+
+func (x *PredictResponse) GetCovariances() *Matrix {
+	if x != nil {
+		return x.Covariances
+	}
+	return nil
+}
+
+func (x *PredictResponse) GetLogDensities() *Matrix {
+	if x != nil {
+		return x.LogDensities
+	}
+	return nil
+}
+
+func (x *PredictResponse) GetPosteriors() *Matrix {
+	if x != nil {
+		return x.Posteriors
+	}
+	return nil
+}
+
+func (x *PredictResponse) GetComponentMeans() *Matrix {
+	if x != nil {
+		return x.ComponentMeans
+	}
+	return nil
+}
+
+func (x *PredictResponse) GetComponentDegreesOfFreedom() *Matrix {
+	if x != nil {
+		return x.ComponentDegreesOfFreedom
+	}
+	return nil
+}
+
+func (x *PredictResponse) GetComponentScales() *Matrix {
+	if x != nil {
+		return x.ComponentScales
+	}
+	return nil
+}
+
+func (x *PredictResponse) GetDraws() *Matrix {
+	if x != nil {
+		return x.Draws
+	}
+	return nil
+}
+
+// CompareModelsRequest names two model versions over the same features.
+type CompareModelsRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// "models/{model}" or "{model}": the first model, p.
+	Model string `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// Its version; 0 means newest.
+	Version int64 `protobuf:"varint,2,opt,name=version,proto3" json:"version,omitempty"`
+	// The second model, q; empty means the same model as `model` (to compare
+	// two versions of one model).
+	OtherModel string `protobuf:"bytes,3,opt,name=other_model,json=otherModel,proto3" json:"other_model,omitempty"`
+	// Its version; 0 means newest.
+	OtherVersion int64 `protobuf:"varint,4,opt,name=other_version,json=otherVersion,proto3" json:"other_version,omitempty"`
+	// Draws per direction (at least 2); 0 means 20000. At most
+	// `mixd serve --max-sample-count`.
+	Samples int64 `protobuf:"varint,5,opt,name=samples,proto3" json:"samples,omitempty"`
+	// Seed of the draws; the same versions, samples and seed give the same result.
+	Seed          uint64 `protobuf:"varint,6,opt,name=seed,proto3" json:"seed,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *CompareModelsRequest) Reset() {
+	*x = CompareModelsRequest{}
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[26]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *CompareModelsRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*CompareModelsRequest) ProtoMessage() {}
+
+func (x *CompareModelsRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[26]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use CompareModelsRequest.ProtoReflect.Descriptor instead.
+func (*CompareModelsRequest) Descriptor() ([]byte, []int) {
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{26}
+}
+
+func (x *CompareModelsRequest) GetModel() string {
+	if x != nil {
+		return x.Model
+	}
+	return ""
+}
+
+func (x *CompareModelsRequest) GetVersion() int64 {
+	if x != nil {
+		return x.Version
+	}
+	return 0
+}
+
+func (x *CompareModelsRequest) GetOtherModel() string {
+	if x != nil {
+		return x.OtherModel
+	}
+	return ""
+}
+
+func (x *CompareModelsRequest) GetOtherVersion() int64 {
+	if x != nil {
+		return x.OtherVersion
+	}
+	return 0
+}
+
+func (x *CompareModelsRequest) GetSamples() int64 {
+	if x != nil {
+		return x.Samples
+	}
+	return 0
+}
+
+func (x *CompareModelsRequest) GetSeed() uint64 {
+	if x != nil {
+		return x.Seed
+	}
+	return 0
+}
+
+// CompareModelsResponse compares p with q. The divergences are Monte Carlo
+// estimates in nats; an estimate close to 0 may be slightly negative and is
+// to be read with its standard error. A divergence says how differently the
+// two models spread probability over the feature space, not why, and not
+// whether the difference matters for a given use.
+type CompareModelsResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// "models/{model}" of p.
+	Model string `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// Version of p.
+	Version int64 `protobuf:"varint,2,opt,name=version,proto3" json:"version,omitempty"`
+	// "models/{model}" of q.
+	OtherModel string `protobuf:"bytes,3,opt,name=other_model,json=otherModel,proto3" json:"other_model,omitempty"`
+	// Version of q.
+	OtherVersion int64 `protobuf:"varint,4,opt,name=other_version,json=otherVersion,proto3" json:"other_version,omitempty"`
+	// Draws per direction.
+	Samples int64 `protobuf:"varint,5,opt,name=samples,proto3" json:"samples,omitempty"`
+	// KL(p||q) = E_p[log p(X) - log q(X)], estimated from draws of p.
+	KlForward float64 `protobuf:"fixed64,6,opt,name=kl_forward,json=klForward,proto3" json:"kl_forward,omitempty"`
+	// Standard error of kl_forward.
+	KlForwardStandardError float64 `protobuf:"fixed64,7,opt,name=kl_forward_standard_error,json=klForwardStandardError,proto3" json:"kl_forward_standard_error,omitempty"`
+	// KL(q||p), estimated from draws of q.
+	KlBackward float64 `protobuf:"fixed64,8,opt,name=kl_backward,json=klBackward,proto3" json:"kl_backward,omitempty"`
+	// Standard error of kl_backward.
+	KlBackwardStandardError float64 `protobuf:"fixed64,9,opt,name=kl_backward_standard_error,json=klBackwardStandardError,proto3" json:"kl_backward_standard_error,omitempty"`
+	// Pairs of matched components (min(Kp, Kq) of them), by p's component.
+	Matches []*ComponentMatch `protobuf:"bytes,10,rep,name=matches,proto3" json:"matches,omitempty"`
+	// Components of p without a partner (when p has more components).
+	UnmatchedComponents []int32 `protobuf:"varint,11,rep,packed,name=unmatched_components,json=unmatchedComponents,proto3" json:"unmatched_components,omitempty"`
+	// Components of q without a partner (when q has more components).
+	UnmatchedOtherComponents []int32 `protobuf:"varint,12,rep,packed,name=unmatched_other_components,json=unmatchedOtherComponents,proto3" json:"unmatched_other_components,omitempty"`
+	// The distance used for the matching: "bhattacharyya" (between Gaussian
+	// components; Student-t components through their moment-matched Gaussians).
+	ComponentDistance string `protobuf:"bytes,13,opt,name=component_distance,json=componentDistance,proto3" json:"component_distance,omitempty"`
+	unknownFields     protoimpl.UnknownFields
+	sizeCache         protoimpl.SizeCache
+}
+
+func (x *CompareModelsResponse) Reset() {
+	*x = CompareModelsResponse{}
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[27]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *CompareModelsResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*CompareModelsResponse) ProtoMessage() {}
+
+func (x *CompareModelsResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[27]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use CompareModelsResponse.ProtoReflect.Descriptor instead.
+func (*CompareModelsResponse) Descriptor() ([]byte, []int) {
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{27}
+}
+
+func (x *CompareModelsResponse) GetModel() string {
+	if x != nil {
+		return x.Model
+	}
+	return ""
+}
+
+func (x *CompareModelsResponse) GetVersion() int64 {
+	if x != nil {
+		return x.Version
+	}
+	return 0
+}
+
+func (x *CompareModelsResponse) GetOtherModel() string {
+	if x != nil {
+		return x.OtherModel
+	}
+	return ""
+}
+
+func (x *CompareModelsResponse) GetOtherVersion() int64 {
+	if x != nil {
+		return x.OtherVersion
+	}
+	return 0
+}
+
+func (x *CompareModelsResponse) GetSamples() int64 {
+	if x != nil {
+		return x.Samples
+	}
+	return 0
+}
+
+func (x *CompareModelsResponse) GetKlForward() float64 {
+	if x != nil {
+		return x.KlForward
+	}
+	return 0
+}
+
+func (x *CompareModelsResponse) GetKlForwardStandardError() float64 {
+	if x != nil {
+		return x.KlForwardStandardError
+	}
+	return 0
+}
+
+func (x *CompareModelsResponse) GetKlBackward() float64 {
+	if x != nil {
+		return x.KlBackward
+	}
+	return 0
+}
+
+func (x *CompareModelsResponse) GetKlBackwardStandardError() float64 {
+	if x != nil {
+		return x.KlBackwardStandardError
+	}
+	return 0
+}
+
+func (x *CompareModelsResponse) GetMatches() []*ComponentMatch {
+	if x != nil {
+		return x.Matches
+	}
+	return nil
+}
+
+func (x *CompareModelsResponse) GetUnmatchedComponents() []int32 {
+	if x != nil {
+		return x.UnmatchedComponents
+	}
+	return nil
+}
+
+func (x *CompareModelsResponse) GetUnmatchedOtherComponents() []int32 {
+	if x != nil {
+		return x.UnmatchedOtherComponents
+	}
+	return nil
+}
+
+func (x *CompareModelsResponse) GetComponentDistance() string {
+	if x != nil {
+		return x.ComponentDistance
+	}
+	return ""
+}
+
+// ComponentMatch is one pair of matched components; the pairs minimise the
+// total distance.
+type ComponentMatch struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Component index in the first model.
+	Component int32 `protobuf:"varint,1,opt,name=component,proto3" json:"component,omitempty"`
+	// Component index in the other model.
+	OtherComponent int32 `protobuf:"varint,2,opt,name=other_component,json=otherComponent,proto3" json:"other_component,omitempty"`
+	// Distance between them (see CompareModelsResponse.component_distance).
+	Distance float64 `protobuf:"fixed64,3,opt,name=distance,proto3" json:"distance,omitempty"`
+	// Weight of the component in the first model.
+	Weight float64 `protobuf:"fixed64,4,opt,name=weight,proto3" json:"weight,omitempty"`
+	// Weight of the component in the other model.
+	OtherWeight   float64 `protobuf:"fixed64,5,opt,name=other_weight,json=otherWeight,proto3" json:"other_weight,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComponentMatch) Reset() {
+	*x = ComponentMatch{}
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[28]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComponentMatch) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComponentMatch) ProtoMessage() {}
+
+func (x *ComponentMatch) ProtoReflect() protoreflect.Message {
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[28]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComponentMatch.ProtoReflect.Descriptor instead.
+func (*ComponentMatch) Descriptor() ([]byte, []int) {
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{28}
+}
+
+func (x *ComponentMatch) GetComponent() int32 {
+	if x != nil {
+		return x.Component
+	}
+	return 0
+}
+
+func (x *ComponentMatch) GetOtherComponent() int32 {
+	if x != nil {
+		return x.OtherComponent
+	}
+	return 0
+}
+
+func (x *ComponentMatch) GetDistance() float64 {
+	if x != nil {
+		return x.Distance
+	}
+	return 0
+}
+
+func (x *ComponentMatch) GetWeight() float64 {
+	if x != nil {
+		return x.Weight
+	}
+	return 0
+}
+
+func (x *ComponentMatch) GetOtherWeight() float64 {
+	if x != nil {
+		return x.OtherWeight
+	}
+	return 0
+}
+
 // GetModelRequest names a model version.
 type GetModelRequest struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -1842,7 +2527,7 @@ type GetModelRequest struct {
 
 func (x *GetModelRequest) Reset() {
 	*x = GetModelRequest{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[24]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[29]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1854,7 +2539,7 @@ func (x *GetModelRequest) String() string {
 func (*GetModelRequest) ProtoMessage() {}
 
 func (x *GetModelRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[24]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[29]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1867,7 +2552,7 @@ func (x *GetModelRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GetModelRequest.ProtoReflect.Descriptor instead.
 func (*GetModelRequest) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{24}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{29}
 }
 
 func (x *GetModelRequest) GetName() string {
@@ -1895,7 +2580,7 @@ type GetModelResponse struct {
 
 func (x *GetModelResponse) Reset() {
 	*x = GetModelResponse{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[25]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[30]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1907,7 +2592,7 @@ func (x *GetModelResponse) String() string {
 func (*GetModelResponse) ProtoMessage() {}
 
 func (x *GetModelResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[25]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[30]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1920,7 +2605,7 @@ func (x *GetModelResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GetModelResponse.ProtoReflect.Descriptor instead.
 func (*GetModelResponse) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{25}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{30}
 }
 
 func (x *GetModelResponse) GetModel() *Model {
@@ -1943,7 +2628,7 @@ type ListModelsRequest struct {
 
 func (x *ListModelsRequest) Reset() {
 	*x = ListModelsRequest{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[26]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[31]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1955,7 +2640,7 @@ func (x *ListModelsRequest) String() string {
 func (*ListModelsRequest) ProtoMessage() {}
 
 func (x *ListModelsRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[26]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[31]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1968,7 +2653,7 @@ func (x *ListModelsRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListModelsRequest.ProtoReflect.Descriptor instead.
 func (*ListModelsRequest) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{26}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{31}
 }
 
 func (x *ListModelsRequest) GetPageSize() int32 {
@@ -1998,7 +2683,7 @@ type ListModelsResponse struct {
 
 func (x *ListModelsResponse) Reset() {
 	*x = ListModelsResponse{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[27]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[32]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2010,7 +2695,7 @@ func (x *ListModelsResponse) String() string {
 func (*ListModelsResponse) ProtoMessage() {}
 
 func (x *ListModelsResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[27]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[32]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2023,7 +2708,7 @@ func (x *ListModelsResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListModelsResponse.ProtoReflect.Descriptor instead.
 func (*ListModelsResponse) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{27}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{32}
 }
 
 func (x *ListModelsResponse) GetModels() []*Model {
@@ -2055,7 +2740,7 @@ type ListModelVersionsRequest struct {
 
 func (x *ListModelVersionsRequest) Reset() {
 	*x = ListModelVersionsRequest{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[28]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[33]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2067,7 +2752,7 @@ func (x *ListModelVersionsRequest) String() string {
 func (*ListModelVersionsRequest) ProtoMessage() {}
 
 func (x *ListModelVersionsRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[28]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[33]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2080,7 +2765,7 @@ func (x *ListModelVersionsRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListModelVersionsRequest.ProtoReflect.Descriptor instead.
 func (*ListModelVersionsRequest) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{28}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{33}
 }
 
 func (x *ListModelVersionsRequest) GetName() string {
@@ -2117,7 +2802,7 @@ type ListModelVersionsResponse struct {
 
 func (x *ListModelVersionsResponse) Reset() {
 	*x = ListModelVersionsResponse{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[29]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[34]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2129,7 +2814,7 @@ func (x *ListModelVersionsResponse) String() string {
 func (*ListModelVersionsResponse) ProtoMessage() {}
 
 func (x *ListModelVersionsResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[29]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[34]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2142,7 +2827,7 @@ func (x *ListModelVersionsResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListModelVersionsResponse.ProtoReflect.Descriptor instead.
 func (*ListModelVersionsResponse) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{29}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{34}
 }
 
 func (x *ListModelVersionsResponse) GetModels() []*Model {
@@ -2172,7 +2857,7 @@ type DeleteModelRequest struct {
 
 func (x *DeleteModelRequest) Reset() {
 	*x = DeleteModelRequest{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[30]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[35]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2184,7 +2869,7 @@ func (x *DeleteModelRequest) String() string {
 func (*DeleteModelRequest) ProtoMessage() {}
 
 func (x *DeleteModelRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[30]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[35]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2197,7 +2882,7 @@ func (x *DeleteModelRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use DeleteModelRequest.ProtoReflect.Descriptor instead.
 func (*DeleteModelRequest) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{30}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{35}
 }
 
 func (x *DeleteModelRequest) GetName() string {
@@ -2225,7 +2910,7 @@ type DeleteModelResponse struct {
 
 func (x *DeleteModelResponse) Reset() {
 	*x = DeleteModelResponse{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[31]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[36]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2237,7 +2922,7 @@ func (x *DeleteModelResponse) String() string {
 func (*DeleteModelResponse) ProtoMessage() {}
 
 func (x *DeleteModelResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[31]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[36]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2250,7 +2935,7 @@ func (x *DeleteModelResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use DeleteModelResponse.ProtoReflect.Descriptor instead.
 func (*DeleteModelResponse) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{31}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{36}
 }
 
 func (x *DeleteModelResponse) GetDeletedVersions() int64 {
@@ -2273,7 +2958,7 @@ type ExportModelRequest struct {
 
 func (x *ExportModelRequest) Reset() {
 	*x = ExportModelRequest{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[32]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[37]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2285,7 +2970,7 @@ func (x *ExportModelRequest) String() string {
 func (*ExportModelRequest) ProtoMessage() {}
 
 func (x *ExportModelRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[32]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[37]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2298,7 +2983,7 @@ func (x *ExportModelRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ExportModelRequest.ProtoReflect.Descriptor instead.
 func (*ExportModelRequest) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{32}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{37}
 }
 
 func (x *ExportModelRequest) GetName() string {
@@ -2326,7 +3011,7 @@ type ExportModelResponse struct {
 
 func (x *ExportModelResponse) Reset() {
 	*x = ExportModelResponse{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[33]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[38]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2338,7 +3023,7 @@ func (x *ExportModelResponse) String() string {
 func (*ExportModelResponse) ProtoMessage() {}
 
 func (x *ExportModelResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[33]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[38]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2351,7 +3036,7 @@ func (x *ExportModelResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ExportModelResponse.ProtoReflect.Descriptor instead.
 func (*ExportModelResponse) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{33}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{38}
 }
 
 func (x *ExportModelResponse) GetDocument() []byte {
@@ -2374,7 +3059,7 @@ type ImportModelRequest struct {
 
 func (x *ImportModelRequest) Reset() {
 	*x = ImportModelRequest{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[34]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[39]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2386,7 +3071,7 @@ func (x *ImportModelRequest) String() string {
 func (*ImportModelRequest) ProtoMessage() {}
 
 func (x *ImportModelRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[34]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[39]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2399,7 +3084,7 @@ func (x *ImportModelRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ImportModelRequest.ProtoReflect.Descriptor instead.
 func (*ImportModelRequest) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{34}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{39}
 }
 
 func (x *ImportModelRequest) GetDocument() []byte {
@@ -2427,7 +3112,7 @@ type ImportModelResponse struct {
 
 func (x *ImportModelResponse) Reset() {
 	*x = ImportModelResponse{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[35]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[40]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2439,7 +3124,7 @@ func (x *ImportModelResponse) String() string {
 func (*ImportModelResponse) ProtoMessage() {}
 
 func (x *ImportModelResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[35]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[40]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2452,7 +3137,7 @@ func (x *ImportModelResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ImportModelResponse.ProtoReflect.Descriptor instead.
 func (*ImportModelResponse) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{35}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{40}
 }
 
 func (x *ImportModelResponse) GetModel() *Model {
@@ -2471,7 +3156,7 @@ type ListFittersRequest struct {
 
 func (x *ListFittersRequest) Reset() {
 	*x = ListFittersRequest{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[36]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[41]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2483,7 +3168,7 @@ func (x *ListFittersRequest) String() string {
 func (*ListFittersRequest) ProtoMessage() {}
 
 func (x *ListFittersRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[36]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[41]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2496,7 +3181,7 @@ func (x *ListFittersRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListFittersRequest.ProtoReflect.Descriptor instead.
 func (*ListFittersRequest) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{36}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{41}
 }
 
 // ListFittersResponse lists the fitters.
@@ -2510,7 +3195,7 @@ type ListFittersResponse struct {
 
 func (x *ListFittersResponse) Reset() {
 	*x = ListFittersResponse{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[37]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[42]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2522,7 +3207,7 @@ func (x *ListFittersResponse) String() string {
 func (*ListFittersResponse) ProtoMessage() {}
 
 func (x *ListFittersResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[37]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[42]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2535,7 +3220,7 @@ func (x *ListFittersResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ListFittersResponse.ProtoReflect.Descriptor instead.
 func (*ListFittersResponse) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{37}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{42}
 }
 
 func (x *ListFittersResponse) GetFitters() []*FitterInfo {
@@ -2554,7 +3239,7 @@ type ReloadFittersRequest struct {
 
 func (x *ReloadFittersRequest) Reset() {
 	*x = ReloadFittersRequest{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[38]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[43]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2566,7 +3251,7 @@ func (x *ReloadFittersRequest) String() string {
 func (*ReloadFittersRequest) ProtoMessage() {}
 
 func (x *ReloadFittersRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[38]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[43]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2579,7 +3264,7 @@ func (x *ReloadFittersRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ReloadFittersRequest.ProtoReflect.Descriptor instead.
 func (*ReloadFittersRequest) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{38}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{43}
 }
 
 // ReloadFittersResponse lists the fitters after the reload.
@@ -2595,7 +3280,7 @@ type ReloadFittersResponse struct {
 
 func (x *ReloadFittersResponse) Reset() {
 	*x = ReloadFittersResponse{}
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[39]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[44]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2607,7 +3292,7 @@ func (x *ReloadFittersResponse) String() string {
 func (*ReloadFittersResponse) ProtoMessage() {}
 
 func (x *ReloadFittersResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_mixd_v1_mixture_service_proto_msgTypes[39]
+	mi := &file_mixd_v1_mixture_service_proto_msgTypes[44]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2620,7 +3305,7 @@ func (x *ReloadFittersResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ReloadFittersResponse.ProtoReflect.Descriptor instead.
 func (*ReloadFittersResponse) Descriptor() ([]byte, []int) {
-	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{39}
+	return file_mixd_v1_mixture_service_proto_rawDescGZIP(), []int{44}
 }
 
 func (x *ReloadFittersResponse) GetFitters() []*FitterInfo {
@@ -2678,14 +3363,15 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"page_token\x18\x02 \x01(\tR\tpageToken\"b\n" +
 	"\x13ListFitJobsResponse\x12#\n" +
 	"\x04jobs\x18\x01 \x03(\v2\x0f.mixd.v1.FitJobR\x04jobs\x12&\n" +
-	"\x0fnext_page_token\x18\x02 \x01(\tR\rnextPageToken\"\x95\x02\n" +
+	"\x0fnext_page_token\x18\x02 \x01(\tR\rnextPageToken\"\xba\x02\n" +
 	"\fScoreRequest\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12#\n" +
 	"\x04rows\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x04rows\x12E\n" +
 	"\x1finclude_component_log_densities\x18\x04 \x01(\bR\x1cincludeComponentLogDensities\x12D\n" +
 	"\x11response_encoding\x18\x05 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\x12#\n" +
-	"\routlier_level\x18\x06 \x01(\x01R\foutlierLevel\"\xf4\x02\n" +
+	"\routlier_level\x18\x06 \x01(\x01R\foutlierLevel\x12#\n" +
+	"\robserved_mask\x18\a \x01(\fR\fobservedMask\"\xf4\x02\n" +
 	"\rScoreResponse\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x124\n" +
@@ -2694,14 +3380,15 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"\x17component_log_densities\x18\x05 \x01(\v2\x0f.mixd.v1.MatrixR\x15componentLogDensities\x12%\n" +
 	"\x0elog_likelihood\x18\x06 \x01(\x01R\rlogLikelihood\x12>\n" +
 	"\x12outlier_statistics\x18\a \x01(\v2\x0f.mixd.v1.MatrixR\x11outlierStatistics\x12\x1a\n" +
-	"\boutliers\x18\b \x03(\bR\boutliers\"\x9b\x02\n" +
+	"\boutliers\x18\b \x03(\bR\boutliers\"\xc0\x02\n" +
 	"\x12ScoreStreamRequest\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12#\n" +
 	"\x04rows\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x04rows\x12E\n" +
 	"\x1finclude_component_log_densities\x18\x04 \x01(\bR\x1cincludeComponentLogDensities\x12D\n" +
 	"\x11response_encoding\x18\x05 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\x12#\n" +
-	"\routlier_level\x18\x06 \x01(\x01R\foutlierLevel\"\xfa\x02\n" +
+	"\routlier_level\x18\x06 \x01(\x01R\foutlierLevel\x12#\n" +
+	"\robserved_mask\x18\a \x01(\fR\fobservedMask\"\xfa\x02\n" +
 	"\x13ScoreStreamResponse\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x124\n" +
@@ -2710,14 +3397,15 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"\x17component_log_densities\x18\x05 \x01(\v2\x0f.mixd.v1.MatrixR\x15componentLogDensities\x12%\n" +
 	"\x0elog_likelihood\x18\x06 \x01(\x01R\rlogLikelihood\x12>\n" +
 	"\x12outlier_statistics\x18\a \x01(\v2\x0f.mixd.v1.MatrixR\x11outlierStatistics\x12\x1a\n" +
-	"\boutliers\x18\b \x03(\bR\boutliers\"\x80\x02\n" +
+	"\boutliers\x18\b \x03(\bR\boutliers\"\xa5\x02\n" +
 	"\x0fClassifyRequest\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12#\n" +
 	"\x04rows\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x04rows\x12#\n" +
 	"\rmin_posterior\x18\x04 \x01(\x01R\fminPosterior\x12-\n" +
 	"\x12include_posteriors\x18\x05 \x01(\bR\x11includePosteriors\x12D\n" +
-	"\x11response_encoding\x18\x06 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\"\xfa\x01\n" +
+	"\x11response_encoding\x18\x06 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\x12#\n" +
+	"\robserved_mask\x18\a \x01(\fR\fobservedMask\"\xfa\x01\n" +
 	"\x10ClassifyResponse\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12/\n" +
@@ -2728,14 +3416,15 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"\n" +
 	"posteriors\x18\x05 \x01(\v2\x0f.mixd.v1.MatrixR\n" +
 	"posteriors\x12\x1c\n" +
-	"\tconfident\x18\x06 \x03(\bR\tconfident\"\x86\x02\n" +
+	"\tconfident\x18\x06 \x03(\bR\tconfident\"\xab\x02\n" +
 	"\x15ClassifyStreamRequest\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12#\n" +
 	"\x04rows\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x04rows\x12#\n" +
 	"\rmin_posterior\x18\x04 \x01(\x01R\fminPosterior\x12-\n" +
 	"\x12include_posteriors\x18\x05 \x01(\bR\x11includePosteriors\x12D\n" +
-	"\x11response_encoding\x18\x06 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\"\x80\x02\n" +
+	"\x11response_encoding\x18\x06 \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\x12#\n" +
+	"\robserved_mask\x18\a \x01(\fR\fobservedMask\"\x80\x02\n" +
 	"\x16ClassifyStreamResponse\x12\x14\n" +
 	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\x12/\n" +
@@ -2774,7 +3463,68 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"\x04rows\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x04rows\x12/\n" +
 	"\n" +
 	"components\x18\x04 \x01(\v2\x0f.mixd.v1.LabelsR\n" +
-	"components\"?\n" +
+	"components\"\xf1\x03\n" +
+	"\x0ePredictRequest\x12\x14\n" +
+	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
+	"\aversion\x18\x02 \x01(\x03R\aversion\x12#\n" +
+	"\x04rows\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x04rows\x12#\n" +
+	"\robserved_mask\x18\x04 \x01(\fR\fobservedMask\x12>\n" +
+	"\x1binclude_standard_deviations\x18\x05 \x01(\bR\x19includeStandardDeviations\x12/\n" +
+	"\x13include_covariances\x18\x06 \x01(\bR\x12includeCovariances\x12-\n" +
+	"\x12include_components\x18\a \x01(\bR\x11includeComponents\x128\n" +
+	"\x18include_component_scales\x18\b \x01(\bR\x16includeComponentScales\x12\x14\n" +
+	"\x05draws\x18\t \x01(\x05R\x05draws\x12\x12\n" +
+	"\x04seed\x18\n" +
+	" \x01(\x04R\x04seed\x12\x1b\n" +
+	"\tfirst_row\x18\v \x01(\x03R\bfirstRow\x12D\n" +
+	"\x11response_encoding\x18\f \x01(\x0e2\x17.mixd.v1.MatrixEncodingR\x10responseEncoding\"\xb3\x04\n" +
+	"\x0fPredictResponse\x12\x14\n" +
+	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
+	"\aversion\x18\x02 \x01(\x03R\aversion\x12%\n" +
+	"\x05means\x18\x03 \x01(\v2\x0f.mixd.v1.MatrixR\x05means\x12@\n" +
+	"\x13standard_deviations\x18\x04 \x01(\v2\x0f.mixd.v1.MatrixR\x12standardDeviations\x121\n" +
+	"\vcovariances\x18\x05 \x01(\v2\x0f.mixd.v1.MatrixR\vcovariances\x124\n" +
+	"\rlog_densities\x18\x06 \x01(\v2\x0f.mixd.v1.MatrixR\flogDensities\x12/\n" +
+	"\n" +
+	"posteriors\x18\a \x01(\v2\x0f.mixd.v1.MatrixR\n" +
+	"posteriors\x128\n" +
+	"\x0fcomponent_means\x18\b \x01(\v2\x0f.mixd.v1.MatrixR\x0ecomponentMeans\x12P\n" +
+	"\x1ccomponent_degrees_of_freedom\x18\t \x01(\v2\x0f.mixd.v1.MatrixR\x19componentDegreesOfFreedom\x12:\n" +
+	"\x10component_scales\x18\n" +
+	" \x01(\v2\x0f.mixd.v1.MatrixR\x0fcomponentScales\x12%\n" +
+	"\x05draws\x18\v \x01(\v2\x0f.mixd.v1.MatrixR\x05draws\"\xba\x01\n" +
+	"\x14CompareModelsRequest\x12\x14\n" +
+	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
+	"\aversion\x18\x02 \x01(\x03R\aversion\x12\x1f\n" +
+	"\vother_model\x18\x03 \x01(\tR\n" +
+	"otherModel\x12#\n" +
+	"\rother_version\x18\x04 \x01(\x03R\fotherVersion\x12\x18\n" +
+	"\asamples\x18\x05 \x01(\x03R\asamples\x12\x12\n" +
+	"\x04seed\x18\x06 \x01(\x04R\x04seed\"\xb2\x04\n" +
+	"\x15CompareModelsResponse\x12\x14\n" +
+	"\x05model\x18\x01 \x01(\tR\x05model\x12\x18\n" +
+	"\aversion\x18\x02 \x01(\x03R\aversion\x12\x1f\n" +
+	"\vother_model\x18\x03 \x01(\tR\n" +
+	"otherModel\x12#\n" +
+	"\rother_version\x18\x04 \x01(\x03R\fotherVersion\x12\x18\n" +
+	"\asamples\x18\x05 \x01(\x03R\asamples\x12\x1d\n" +
+	"\n" +
+	"kl_forward\x18\x06 \x01(\x01R\tklForward\x129\n" +
+	"\x19kl_forward_standard_error\x18\a \x01(\x01R\x16klForwardStandardError\x12\x1f\n" +
+	"\vkl_backward\x18\b \x01(\x01R\n" +
+	"klBackward\x12;\n" +
+	"\x1akl_backward_standard_error\x18\t \x01(\x01R\x17klBackwardStandardError\x121\n" +
+	"\amatches\x18\n" +
+	" \x03(\v2\x17.mixd.v1.ComponentMatchR\amatches\x121\n" +
+	"\x14unmatched_components\x18\v \x03(\x05R\x13unmatchedComponents\x12<\n" +
+	"\x1aunmatched_other_components\x18\f \x03(\x05R\x18unmatchedOtherComponents\x12-\n" +
+	"\x12component_distance\x18\r \x01(\tR\x11componentDistance\"\xae\x01\n" +
+	"\x0eComponentMatch\x12\x1c\n" +
+	"\tcomponent\x18\x01 \x01(\x05R\tcomponent\x12'\n" +
+	"\x0fother_component\x18\x02 \x01(\x05R\x0eotherComponent\x12\x1a\n" +
+	"\bdistance\x18\x03 \x01(\x01R\bdistance\x12\x16\n" +
+	"\x06weight\x18\x04 \x01(\x01R\x06weight\x12!\n" +
+	"\fother_weight\x18\x05 \x01(\x01R\votherWeight\"?\n" +
 	"\x0fGetModelRequest\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12\x18\n" +
 	"\aversion\x18\x02 \x01(\x03R\aversion\"8\n" +
@@ -2816,7 +3566,7 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"\x14ReloadFittersRequest\"b\n" +
 	"\x15ReloadFittersResponse\x12-\n" +
 	"\afitters\x18\x01 \x03(\v2\x13.mixd.v1.FitterInfoR\afitters\x12\x1a\n" +
-	"\bproblems\x18\x02 \x03(\tR\bproblems2\xc0\v\n" +
+	"\bproblems\x18\x02 \x03(\tR\bproblems2\xce\f\n" +
 	"\x0eMixtureService\x124\n" +
 	"\x03Fit\x12\x13.mixd.v1.FitRequest\x1a\x14.mixd.v1.FitResponse(\x010\x01\x12M\n" +
 	"\fCreateFitJob\x12\x1c.mixd.v1.CreateFitJobRequest\x1a\x1d.mixd.v1.CreateFitJobResponse(\x01\x12B\n" +
@@ -2829,7 +3579,9 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"\bClassify\x12\x18.mixd.v1.ClassifyRequest\x1a\x19.mixd.v1.ClassifyResponse\x12U\n" +
 	"\x0eClassifyStream\x12\x1e.mixd.v1.ClassifyStreamRequest\x1a\x1f.mixd.v1.ClassifyStreamResponse(\x010\x01\x129\n" +
 	"\x06Sample\x12\x16.mixd.v1.SampleRequest\x1a\x17.mixd.v1.SampleResponse\x12M\n" +
-	"\fSampleStream\x12\x1c.mixd.v1.SampleStreamRequest\x1a\x1d.mixd.v1.SampleStreamResponse0\x01\x12?\n" +
+	"\fSampleStream\x12\x1c.mixd.v1.SampleStreamRequest\x1a\x1d.mixd.v1.SampleStreamResponse0\x01\x12<\n" +
+	"\aPredict\x12\x17.mixd.v1.PredictRequest\x1a\x18.mixd.v1.PredictResponse\x12N\n" +
+	"\rCompareModels\x12\x1d.mixd.v1.CompareModelsRequest\x1a\x1e.mixd.v1.CompareModelsResponse\x12?\n" +
 	"\bGetModel\x12\x18.mixd.v1.GetModelRequest\x1a\x19.mixd.v1.GetModelResponse\x12E\n" +
 	"\n" +
 	"ListModels\x12\x1a.mixd.v1.ListModelsRequest\x1a\x1b.mixd.v1.ListModelsResponse\x12Z\n" +
@@ -2852,7 +3604,7 @@ func file_mixd_v1_mixture_service_proto_rawDescGZIP() []byte {
 	return file_mixd_v1_mixture_service_proto_rawDescData
 }
 
-var file_mixd_v1_mixture_service_proto_msgTypes = make([]protoimpl.MessageInfo, 40)
+var file_mixd_v1_mixture_service_proto_msgTypes = make([]protoimpl.MessageInfo, 45)
 var file_mixd_v1_mixture_service_proto_goTypes = []any{
 	(*FitRequest)(nil),                // 0: mixd.v1.FitRequest
 	(*FitResponse)(nil),               // 1: mixd.v1.FitResponse
@@ -2878,127 +3630,148 @@ var file_mixd_v1_mixture_service_proto_goTypes = []any{
 	(*SampleResponse)(nil),            // 21: mixd.v1.SampleResponse
 	(*SampleStreamRequest)(nil),       // 22: mixd.v1.SampleStreamRequest
 	(*SampleStreamResponse)(nil),      // 23: mixd.v1.SampleStreamResponse
-	(*GetModelRequest)(nil),           // 24: mixd.v1.GetModelRequest
-	(*GetModelResponse)(nil),          // 25: mixd.v1.GetModelResponse
-	(*ListModelsRequest)(nil),         // 26: mixd.v1.ListModelsRequest
-	(*ListModelsResponse)(nil),        // 27: mixd.v1.ListModelsResponse
-	(*ListModelVersionsRequest)(nil),  // 28: mixd.v1.ListModelVersionsRequest
-	(*ListModelVersionsResponse)(nil), // 29: mixd.v1.ListModelVersionsResponse
-	(*DeleteModelRequest)(nil),        // 30: mixd.v1.DeleteModelRequest
-	(*DeleteModelResponse)(nil),       // 31: mixd.v1.DeleteModelResponse
-	(*ExportModelRequest)(nil),        // 32: mixd.v1.ExportModelRequest
-	(*ExportModelResponse)(nil),       // 33: mixd.v1.ExportModelResponse
-	(*ImportModelRequest)(nil),        // 34: mixd.v1.ImportModelRequest
-	(*ImportModelResponse)(nil),       // 35: mixd.v1.ImportModelResponse
-	(*ListFittersRequest)(nil),        // 36: mixd.v1.ListFittersRequest
-	(*ListFittersResponse)(nil),       // 37: mixd.v1.ListFittersResponse
-	(*ReloadFittersRequest)(nil),      // 38: mixd.v1.ReloadFittersRequest
-	(*ReloadFittersResponse)(nil),     // 39: mixd.v1.ReloadFittersResponse
-	(*FitSpec)(nil),                   // 40: mixd.v1.FitSpec
-	(*FitChunk)(nil),                  // 41: mixd.v1.FitChunk
-	(*FitJob)(nil),                    // 42: mixd.v1.FitJob
-	(*FitProgress)(nil),               // 43: mixd.v1.FitProgress
-	(*Model)(nil),                     // 44: mixd.v1.Model
-	(*Matrix)(nil),                    // 45: mixd.v1.Matrix
-	(MatrixEncoding)(0),               // 46: mixd.v1.MatrixEncoding
-	(*Labels)(nil),                    // 47: mixd.v1.Labels
-	(*FitterInfo)(nil),                // 48: mixd.v1.FitterInfo
+	(*PredictRequest)(nil),            // 24: mixd.v1.PredictRequest
+	(*PredictResponse)(nil),           // 25: mixd.v1.PredictResponse
+	(*CompareModelsRequest)(nil),      // 26: mixd.v1.CompareModelsRequest
+	(*CompareModelsResponse)(nil),     // 27: mixd.v1.CompareModelsResponse
+	(*ComponentMatch)(nil),            // 28: mixd.v1.ComponentMatch
+	(*GetModelRequest)(nil),           // 29: mixd.v1.GetModelRequest
+	(*GetModelResponse)(nil),          // 30: mixd.v1.GetModelResponse
+	(*ListModelsRequest)(nil),         // 31: mixd.v1.ListModelsRequest
+	(*ListModelsResponse)(nil),        // 32: mixd.v1.ListModelsResponse
+	(*ListModelVersionsRequest)(nil),  // 33: mixd.v1.ListModelVersionsRequest
+	(*ListModelVersionsResponse)(nil), // 34: mixd.v1.ListModelVersionsResponse
+	(*DeleteModelRequest)(nil),        // 35: mixd.v1.DeleteModelRequest
+	(*DeleteModelResponse)(nil),       // 36: mixd.v1.DeleteModelResponse
+	(*ExportModelRequest)(nil),        // 37: mixd.v1.ExportModelRequest
+	(*ExportModelResponse)(nil),       // 38: mixd.v1.ExportModelResponse
+	(*ImportModelRequest)(nil),        // 39: mixd.v1.ImportModelRequest
+	(*ImportModelResponse)(nil),       // 40: mixd.v1.ImportModelResponse
+	(*ListFittersRequest)(nil),        // 41: mixd.v1.ListFittersRequest
+	(*ListFittersResponse)(nil),       // 42: mixd.v1.ListFittersResponse
+	(*ReloadFittersRequest)(nil),      // 43: mixd.v1.ReloadFittersRequest
+	(*ReloadFittersResponse)(nil),     // 44: mixd.v1.ReloadFittersResponse
+	(*FitSpec)(nil),                   // 45: mixd.v1.FitSpec
+	(*FitChunk)(nil),                  // 46: mixd.v1.FitChunk
+	(*FitJob)(nil),                    // 47: mixd.v1.FitJob
+	(*FitProgress)(nil),               // 48: mixd.v1.FitProgress
+	(*Model)(nil),                     // 49: mixd.v1.Model
+	(*Matrix)(nil),                    // 50: mixd.v1.Matrix
+	(MatrixEncoding)(0),               // 51: mixd.v1.MatrixEncoding
+	(*Labels)(nil),                    // 52: mixd.v1.Labels
+	(*FitterInfo)(nil),                // 53: mixd.v1.FitterInfo
 }
 var file_mixd_v1_mixture_service_proto_depIdxs = []int32{
-	40, // 0: mixd.v1.FitRequest.spec:type_name -> mixd.v1.FitSpec
-	41, // 1: mixd.v1.FitRequest.chunk:type_name -> mixd.v1.FitChunk
-	42, // 2: mixd.v1.FitResponse.job:type_name -> mixd.v1.FitJob
-	43, // 3: mixd.v1.FitResponse.progress:type_name -> mixd.v1.FitProgress
-	44, // 4: mixd.v1.FitResponse.model:type_name -> mixd.v1.Model
-	40, // 5: mixd.v1.CreateFitJobRequest.spec:type_name -> mixd.v1.FitSpec
-	41, // 6: mixd.v1.CreateFitJobRequest.chunk:type_name -> mixd.v1.FitChunk
-	42, // 7: mixd.v1.CreateFitJobResponse.job:type_name -> mixd.v1.FitJob
-	42, // 8: mixd.v1.GetFitJobResponse.job:type_name -> mixd.v1.FitJob
-	44, // 9: mixd.v1.GetFitJobResponse.model:type_name -> mixd.v1.Model
-	42, // 10: mixd.v1.WatchFitJobResponse.job:type_name -> mixd.v1.FitJob
-	43, // 11: mixd.v1.WatchFitJobResponse.progress:type_name -> mixd.v1.FitProgress
-	44, // 12: mixd.v1.WatchFitJobResponse.model:type_name -> mixd.v1.Model
-	42, // 13: mixd.v1.CancelFitJobResponse.job:type_name -> mixd.v1.FitJob
-	42, // 14: mixd.v1.ListFitJobsResponse.jobs:type_name -> mixd.v1.FitJob
-	45, // 15: mixd.v1.ScoreRequest.rows:type_name -> mixd.v1.Matrix
-	46, // 16: mixd.v1.ScoreRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	45, // 17: mixd.v1.ScoreResponse.log_densities:type_name -> mixd.v1.Matrix
-	45, // 18: mixd.v1.ScoreResponse.percentiles:type_name -> mixd.v1.Matrix
-	45, // 19: mixd.v1.ScoreResponse.component_log_densities:type_name -> mixd.v1.Matrix
-	45, // 20: mixd.v1.ScoreResponse.outlier_statistics:type_name -> mixd.v1.Matrix
-	45, // 21: mixd.v1.ScoreStreamRequest.rows:type_name -> mixd.v1.Matrix
-	46, // 22: mixd.v1.ScoreStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	45, // 23: mixd.v1.ScoreStreamResponse.log_densities:type_name -> mixd.v1.Matrix
-	45, // 24: mixd.v1.ScoreStreamResponse.percentiles:type_name -> mixd.v1.Matrix
-	45, // 25: mixd.v1.ScoreStreamResponse.component_log_densities:type_name -> mixd.v1.Matrix
-	45, // 26: mixd.v1.ScoreStreamResponse.outlier_statistics:type_name -> mixd.v1.Matrix
-	45, // 27: mixd.v1.ClassifyRequest.rows:type_name -> mixd.v1.Matrix
-	46, // 28: mixd.v1.ClassifyRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	47, // 29: mixd.v1.ClassifyResponse.components:type_name -> mixd.v1.Labels
-	45, // 30: mixd.v1.ClassifyResponse.max_posteriors:type_name -> mixd.v1.Matrix
-	45, // 31: mixd.v1.ClassifyResponse.posteriors:type_name -> mixd.v1.Matrix
-	45, // 32: mixd.v1.ClassifyStreamRequest.rows:type_name -> mixd.v1.Matrix
-	46, // 33: mixd.v1.ClassifyStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	47, // 34: mixd.v1.ClassifyStreamResponse.components:type_name -> mixd.v1.Labels
-	45, // 35: mixd.v1.ClassifyStreamResponse.max_posteriors:type_name -> mixd.v1.Matrix
-	45, // 36: mixd.v1.ClassifyStreamResponse.posteriors:type_name -> mixd.v1.Matrix
-	46, // 37: mixd.v1.SampleRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	45, // 38: mixd.v1.SampleResponse.rows:type_name -> mixd.v1.Matrix
-	47, // 39: mixd.v1.SampleResponse.components:type_name -> mixd.v1.Labels
-	46, // 40: mixd.v1.SampleStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
-	45, // 41: mixd.v1.SampleStreamResponse.rows:type_name -> mixd.v1.Matrix
-	47, // 42: mixd.v1.SampleStreamResponse.components:type_name -> mixd.v1.Labels
-	44, // 43: mixd.v1.GetModelResponse.model:type_name -> mixd.v1.Model
-	44, // 44: mixd.v1.ListModelsResponse.models:type_name -> mixd.v1.Model
-	44, // 45: mixd.v1.ListModelVersionsResponse.models:type_name -> mixd.v1.Model
-	44, // 46: mixd.v1.ImportModelResponse.model:type_name -> mixd.v1.Model
-	48, // 47: mixd.v1.ListFittersResponse.fitters:type_name -> mixd.v1.FitterInfo
-	48, // 48: mixd.v1.ReloadFittersResponse.fitters:type_name -> mixd.v1.FitterInfo
-	0,  // 49: mixd.v1.MixtureService.Fit:input_type -> mixd.v1.FitRequest
-	2,  // 50: mixd.v1.MixtureService.CreateFitJob:input_type -> mixd.v1.CreateFitJobRequest
-	4,  // 51: mixd.v1.MixtureService.GetFitJob:input_type -> mixd.v1.GetFitJobRequest
-	6,  // 52: mixd.v1.MixtureService.WatchFitJob:input_type -> mixd.v1.WatchFitJobRequest
-	8,  // 53: mixd.v1.MixtureService.CancelFitJob:input_type -> mixd.v1.CancelFitJobRequest
-	10, // 54: mixd.v1.MixtureService.ListFitJobs:input_type -> mixd.v1.ListFitJobsRequest
-	12, // 55: mixd.v1.MixtureService.Score:input_type -> mixd.v1.ScoreRequest
-	14, // 56: mixd.v1.MixtureService.ScoreStream:input_type -> mixd.v1.ScoreStreamRequest
-	16, // 57: mixd.v1.MixtureService.Classify:input_type -> mixd.v1.ClassifyRequest
-	18, // 58: mixd.v1.MixtureService.ClassifyStream:input_type -> mixd.v1.ClassifyStreamRequest
-	20, // 59: mixd.v1.MixtureService.Sample:input_type -> mixd.v1.SampleRequest
-	22, // 60: mixd.v1.MixtureService.SampleStream:input_type -> mixd.v1.SampleStreamRequest
-	24, // 61: mixd.v1.MixtureService.GetModel:input_type -> mixd.v1.GetModelRequest
-	26, // 62: mixd.v1.MixtureService.ListModels:input_type -> mixd.v1.ListModelsRequest
-	28, // 63: mixd.v1.MixtureService.ListModelVersions:input_type -> mixd.v1.ListModelVersionsRequest
-	30, // 64: mixd.v1.MixtureService.DeleteModel:input_type -> mixd.v1.DeleteModelRequest
-	32, // 65: mixd.v1.MixtureService.ExportModel:input_type -> mixd.v1.ExportModelRequest
-	34, // 66: mixd.v1.MixtureService.ImportModel:input_type -> mixd.v1.ImportModelRequest
-	36, // 67: mixd.v1.MixtureService.ListFitters:input_type -> mixd.v1.ListFittersRequest
-	38, // 68: mixd.v1.MixtureService.ReloadFitters:input_type -> mixd.v1.ReloadFittersRequest
-	1,  // 69: mixd.v1.MixtureService.Fit:output_type -> mixd.v1.FitResponse
-	3,  // 70: mixd.v1.MixtureService.CreateFitJob:output_type -> mixd.v1.CreateFitJobResponse
-	5,  // 71: mixd.v1.MixtureService.GetFitJob:output_type -> mixd.v1.GetFitJobResponse
-	7,  // 72: mixd.v1.MixtureService.WatchFitJob:output_type -> mixd.v1.WatchFitJobResponse
-	9,  // 73: mixd.v1.MixtureService.CancelFitJob:output_type -> mixd.v1.CancelFitJobResponse
-	11, // 74: mixd.v1.MixtureService.ListFitJobs:output_type -> mixd.v1.ListFitJobsResponse
-	13, // 75: mixd.v1.MixtureService.Score:output_type -> mixd.v1.ScoreResponse
-	15, // 76: mixd.v1.MixtureService.ScoreStream:output_type -> mixd.v1.ScoreStreamResponse
-	17, // 77: mixd.v1.MixtureService.Classify:output_type -> mixd.v1.ClassifyResponse
-	19, // 78: mixd.v1.MixtureService.ClassifyStream:output_type -> mixd.v1.ClassifyStreamResponse
-	21, // 79: mixd.v1.MixtureService.Sample:output_type -> mixd.v1.SampleResponse
-	23, // 80: mixd.v1.MixtureService.SampleStream:output_type -> mixd.v1.SampleStreamResponse
-	25, // 81: mixd.v1.MixtureService.GetModel:output_type -> mixd.v1.GetModelResponse
-	27, // 82: mixd.v1.MixtureService.ListModels:output_type -> mixd.v1.ListModelsResponse
-	29, // 83: mixd.v1.MixtureService.ListModelVersions:output_type -> mixd.v1.ListModelVersionsResponse
-	31, // 84: mixd.v1.MixtureService.DeleteModel:output_type -> mixd.v1.DeleteModelResponse
-	33, // 85: mixd.v1.MixtureService.ExportModel:output_type -> mixd.v1.ExportModelResponse
-	35, // 86: mixd.v1.MixtureService.ImportModel:output_type -> mixd.v1.ImportModelResponse
-	37, // 87: mixd.v1.MixtureService.ListFitters:output_type -> mixd.v1.ListFittersResponse
-	39, // 88: mixd.v1.MixtureService.ReloadFitters:output_type -> mixd.v1.ReloadFittersResponse
-	69, // [69:89] is the sub-list for method output_type
-	49, // [49:69] is the sub-list for method input_type
-	49, // [49:49] is the sub-list for extension type_name
-	49, // [49:49] is the sub-list for extension extendee
-	0,  // [0:49] is the sub-list for field type_name
+	45, // 0: mixd.v1.FitRequest.spec:type_name -> mixd.v1.FitSpec
+	46, // 1: mixd.v1.FitRequest.chunk:type_name -> mixd.v1.FitChunk
+	47, // 2: mixd.v1.FitResponse.job:type_name -> mixd.v1.FitJob
+	48, // 3: mixd.v1.FitResponse.progress:type_name -> mixd.v1.FitProgress
+	49, // 4: mixd.v1.FitResponse.model:type_name -> mixd.v1.Model
+	45, // 5: mixd.v1.CreateFitJobRequest.spec:type_name -> mixd.v1.FitSpec
+	46, // 6: mixd.v1.CreateFitJobRequest.chunk:type_name -> mixd.v1.FitChunk
+	47, // 7: mixd.v1.CreateFitJobResponse.job:type_name -> mixd.v1.FitJob
+	47, // 8: mixd.v1.GetFitJobResponse.job:type_name -> mixd.v1.FitJob
+	49, // 9: mixd.v1.GetFitJobResponse.model:type_name -> mixd.v1.Model
+	47, // 10: mixd.v1.WatchFitJobResponse.job:type_name -> mixd.v1.FitJob
+	48, // 11: mixd.v1.WatchFitJobResponse.progress:type_name -> mixd.v1.FitProgress
+	49, // 12: mixd.v1.WatchFitJobResponse.model:type_name -> mixd.v1.Model
+	47, // 13: mixd.v1.CancelFitJobResponse.job:type_name -> mixd.v1.FitJob
+	47, // 14: mixd.v1.ListFitJobsResponse.jobs:type_name -> mixd.v1.FitJob
+	50, // 15: mixd.v1.ScoreRequest.rows:type_name -> mixd.v1.Matrix
+	51, // 16: mixd.v1.ScoreRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	50, // 17: mixd.v1.ScoreResponse.log_densities:type_name -> mixd.v1.Matrix
+	50, // 18: mixd.v1.ScoreResponse.percentiles:type_name -> mixd.v1.Matrix
+	50, // 19: mixd.v1.ScoreResponse.component_log_densities:type_name -> mixd.v1.Matrix
+	50, // 20: mixd.v1.ScoreResponse.outlier_statistics:type_name -> mixd.v1.Matrix
+	50, // 21: mixd.v1.ScoreStreamRequest.rows:type_name -> mixd.v1.Matrix
+	51, // 22: mixd.v1.ScoreStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	50, // 23: mixd.v1.ScoreStreamResponse.log_densities:type_name -> mixd.v1.Matrix
+	50, // 24: mixd.v1.ScoreStreamResponse.percentiles:type_name -> mixd.v1.Matrix
+	50, // 25: mixd.v1.ScoreStreamResponse.component_log_densities:type_name -> mixd.v1.Matrix
+	50, // 26: mixd.v1.ScoreStreamResponse.outlier_statistics:type_name -> mixd.v1.Matrix
+	50, // 27: mixd.v1.ClassifyRequest.rows:type_name -> mixd.v1.Matrix
+	51, // 28: mixd.v1.ClassifyRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	52, // 29: mixd.v1.ClassifyResponse.components:type_name -> mixd.v1.Labels
+	50, // 30: mixd.v1.ClassifyResponse.max_posteriors:type_name -> mixd.v1.Matrix
+	50, // 31: mixd.v1.ClassifyResponse.posteriors:type_name -> mixd.v1.Matrix
+	50, // 32: mixd.v1.ClassifyStreamRequest.rows:type_name -> mixd.v1.Matrix
+	51, // 33: mixd.v1.ClassifyStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	52, // 34: mixd.v1.ClassifyStreamResponse.components:type_name -> mixd.v1.Labels
+	50, // 35: mixd.v1.ClassifyStreamResponse.max_posteriors:type_name -> mixd.v1.Matrix
+	50, // 36: mixd.v1.ClassifyStreamResponse.posteriors:type_name -> mixd.v1.Matrix
+	51, // 37: mixd.v1.SampleRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	50, // 38: mixd.v1.SampleResponse.rows:type_name -> mixd.v1.Matrix
+	52, // 39: mixd.v1.SampleResponse.components:type_name -> mixd.v1.Labels
+	51, // 40: mixd.v1.SampleStreamRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	50, // 41: mixd.v1.SampleStreamResponse.rows:type_name -> mixd.v1.Matrix
+	52, // 42: mixd.v1.SampleStreamResponse.components:type_name -> mixd.v1.Labels
+	50, // 43: mixd.v1.PredictRequest.rows:type_name -> mixd.v1.Matrix
+	51, // 44: mixd.v1.PredictRequest.response_encoding:type_name -> mixd.v1.MatrixEncoding
+	50, // 45: mixd.v1.PredictResponse.means:type_name -> mixd.v1.Matrix
+	50, // 46: mixd.v1.PredictResponse.standard_deviations:type_name -> mixd.v1.Matrix
+	50, // 47: mixd.v1.PredictResponse.covariances:type_name -> mixd.v1.Matrix
+	50, // 48: mixd.v1.PredictResponse.log_densities:type_name -> mixd.v1.Matrix
+	50, // 49: mixd.v1.PredictResponse.posteriors:type_name -> mixd.v1.Matrix
+	50, // 50: mixd.v1.PredictResponse.component_means:type_name -> mixd.v1.Matrix
+	50, // 51: mixd.v1.PredictResponse.component_degrees_of_freedom:type_name -> mixd.v1.Matrix
+	50, // 52: mixd.v1.PredictResponse.component_scales:type_name -> mixd.v1.Matrix
+	50, // 53: mixd.v1.PredictResponse.draws:type_name -> mixd.v1.Matrix
+	28, // 54: mixd.v1.CompareModelsResponse.matches:type_name -> mixd.v1.ComponentMatch
+	49, // 55: mixd.v1.GetModelResponse.model:type_name -> mixd.v1.Model
+	49, // 56: mixd.v1.ListModelsResponse.models:type_name -> mixd.v1.Model
+	49, // 57: mixd.v1.ListModelVersionsResponse.models:type_name -> mixd.v1.Model
+	49, // 58: mixd.v1.ImportModelResponse.model:type_name -> mixd.v1.Model
+	53, // 59: mixd.v1.ListFittersResponse.fitters:type_name -> mixd.v1.FitterInfo
+	53, // 60: mixd.v1.ReloadFittersResponse.fitters:type_name -> mixd.v1.FitterInfo
+	0,  // 61: mixd.v1.MixtureService.Fit:input_type -> mixd.v1.FitRequest
+	2,  // 62: mixd.v1.MixtureService.CreateFitJob:input_type -> mixd.v1.CreateFitJobRequest
+	4,  // 63: mixd.v1.MixtureService.GetFitJob:input_type -> mixd.v1.GetFitJobRequest
+	6,  // 64: mixd.v1.MixtureService.WatchFitJob:input_type -> mixd.v1.WatchFitJobRequest
+	8,  // 65: mixd.v1.MixtureService.CancelFitJob:input_type -> mixd.v1.CancelFitJobRequest
+	10, // 66: mixd.v1.MixtureService.ListFitJobs:input_type -> mixd.v1.ListFitJobsRequest
+	12, // 67: mixd.v1.MixtureService.Score:input_type -> mixd.v1.ScoreRequest
+	14, // 68: mixd.v1.MixtureService.ScoreStream:input_type -> mixd.v1.ScoreStreamRequest
+	16, // 69: mixd.v1.MixtureService.Classify:input_type -> mixd.v1.ClassifyRequest
+	18, // 70: mixd.v1.MixtureService.ClassifyStream:input_type -> mixd.v1.ClassifyStreamRequest
+	20, // 71: mixd.v1.MixtureService.Sample:input_type -> mixd.v1.SampleRequest
+	22, // 72: mixd.v1.MixtureService.SampleStream:input_type -> mixd.v1.SampleStreamRequest
+	24, // 73: mixd.v1.MixtureService.Predict:input_type -> mixd.v1.PredictRequest
+	26, // 74: mixd.v1.MixtureService.CompareModels:input_type -> mixd.v1.CompareModelsRequest
+	29, // 75: mixd.v1.MixtureService.GetModel:input_type -> mixd.v1.GetModelRequest
+	31, // 76: mixd.v1.MixtureService.ListModels:input_type -> mixd.v1.ListModelsRequest
+	33, // 77: mixd.v1.MixtureService.ListModelVersions:input_type -> mixd.v1.ListModelVersionsRequest
+	35, // 78: mixd.v1.MixtureService.DeleteModel:input_type -> mixd.v1.DeleteModelRequest
+	37, // 79: mixd.v1.MixtureService.ExportModel:input_type -> mixd.v1.ExportModelRequest
+	39, // 80: mixd.v1.MixtureService.ImportModel:input_type -> mixd.v1.ImportModelRequest
+	41, // 81: mixd.v1.MixtureService.ListFitters:input_type -> mixd.v1.ListFittersRequest
+	43, // 82: mixd.v1.MixtureService.ReloadFitters:input_type -> mixd.v1.ReloadFittersRequest
+	1,  // 83: mixd.v1.MixtureService.Fit:output_type -> mixd.v1.FitResponse
+	3,  // 84: mixd.v1.MixtureService.CreateFitJob:output_type -> mixd.v1.CreateFitJobResponse
+	5,  // 85: mixd.v1.MixtureService.GetFitJob:output_type -> mixd.v1.GetFitJobResponse
+	7,  // 86: mixd.v1.MixtureService.WatchFitJob:output_type -> mixd.v1.WatchFitJobResponse
+	9,  // 87: mixd.v1.MixtureService.CancelFitJob:output_type -> mixd.v1.CancelFitJobResponse
+	11, // 88: mixd.v1.MixtureService.ListFitJobs:output_type -> mixd.v1.ListFitJobsResponse
+	13, // 89: mixd.v1.MixtureService.Score:output_type -> mixd.v1.ScoreResponse
+	15, // 90: mixd.v1.MixtureService.ScoreStream:output_type -> mixd.v1.ScoreStreamResponse
+	17, // 91: mixd.v1.MixtureService.Classify:output_type -> mixd.v1.ClassifyResponse
+	19, // 92: mixd.v1.MixtureService.ClassifyStream:output_type -> mixd.v1.ClassifyStreamResponse
+	21, // 93: mixd.v1.MixtureService.Sample:output_type -> mixd.v1.SampleResponse
+	23, // 94: mixd.v1.MixtureService.SampleStream:output_type -> mixd.v1.SampleStreamResponse
+	25, // 95: mixd.v1.MixtureService.Predict:output_type -> mixd.v1.PredictResponse
+	27, // 96: mixd.v1.MixtureService.CompareModels:output_type -> mixd.v1.CompareModelsResponse
+	30, // 97: mixd.v1.MixtureService.GetModel:output_type -> mixd.v1.GetModelResponse
+	32, // 98: mixd.v1.MixtureService.ListModels:output_type -> mixd.v1.ListModelsResponse
+	34, // 99: mixd.v1.MixtureService.ListModelVersions:output_type -> mixd.v1.ListModelVersionsResponse
+	36, // 100: mixd.v1.MixtureService.DeleteModel:output_type -> mixd.v1.DeleteModelResponse
+	38, // 101: mixd.v1.MixtureService.ExportModel:output_type -> mixd.v1.ExportModelResponse
+	40, // 102: mixd.v1.MixtureService.ImportModel:output_type -> mixd.v1.ImportModelResponse
+	42, // 103: mixd.v1.MixtureService.ListFitters:output_type -> mixd.v1.ListFittersResponse
+	44, // 104: mixd.v1.MixtureService.ReloadFitters:output_type -> mixd.v1.ReloadFittersResponse
+	83, // [83:105] is the sub-list for method output_type
+	61, // [61:83] is the sub-list for method input_type
+	61, // [61:61] is the sub-list for extension type_name
+	61, // [61:61] is the sub-list for extension extendee
+	0,  // [0:61] is the sub-list for field type_name
 }
 
 func init() { file_mixd_v1_mixture_service_proto_init() }
@@ -3023,7 +3796,7 @@ func file_mixd_v1_mixture_service_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_mixd_v1_mixture_service_proto_rawDesc), len(file_mixd_v1_mixture_service_proto_rawDesc)),
 			NumEnums:      0,
-			NumMessages:   40,
+			NumMessages:   45,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

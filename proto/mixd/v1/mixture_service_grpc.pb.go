@@ -31,6 +31,8 @@ const (
 	MixtureService_ClassifyStream_FullMethodName    = "/mixd.v1.MixtureService/ClassifyStream"
 	MixtureService_Sample_FullMethodName            = "/mixd.v1.MixtureService/Sample"
 	MixtureService_SampleStream_FullMethodName      = "/mixd.v1.MixtureService/SampleStream"
+	MixtureService_Predict_FullMethodName           = "/mixd.v1.MixtureService/Predict"
+	MixtureService_CompareModels_FullMethodName     = "/mixd.v1.MixtureService/CompareModels"
 	MixtureService_GetModel_FullMethodName          = "/mixd.v1.MixtureService/GetModel"
 	MixtureService_ListModels_FullMethodName        = "/mixd.v1.MixtureService/ListModels"
 	MixtureService_ListModelVersions_FullMethodName = "/mixd.v1.MixtureService/ListModelVersions"
@@ -78,6 +80,14 @@ type MixtureServiceClient interface {
 	Sample(ctx context.Context, in *SampleRequest, opts ...grpc.CallOption) (*SampleResponse, error)
 	// SampleStream draws rows in chunks; the rows equal those of Sample with the same seed.
 	SampleStream(ctx context.Context, in *SampleStreamRequest, opts ...grpc.CallOption) (grpc.ServerStreamingClient[SampleStreamResponse], error)
+	// Predict returns, for rows with some features unobserved, the conditional
+	// distribution of the unobserved features given the observed ones: its
+	// mean, optionally its spread, per-component parts and seeded draws.
+	Predict(ctx context.Context, in *PredictRequest, opts ...grpc.CallOption) (*PredictResponse, error)
+	// CompareModels compares two models, or two versions of one model, over the
+	// same features: Monte Carlo Kullback-Leibler divergences in both directions
+	// with standard errors, and a matching of their components.
+	CompareModels(ctx context.Context, in *CompareModelsRequest, opts ...grpc.CallOption) (*CompareModelsResponse, error)
 	// GetModel returns one version of a model.
 	GetModel(ctx context.Context, in *GetModelRequest, opts ...grpc.CallOption) (*GetModelResponse, error)
 	// ListModels lists the newest version of every model, by name.
@@ -254,6 +264,26 @@ func (c *mixtureServiceClient) SampleStream(ctx context.Context, in *SampleStrea
 // This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
 type MixtureService_SampleStreamClient = grpc.ServerStreamingClient[SampleStreamResponse]
 
+func (c *mixtureServiceClient) Predict(ctx context.Context, in *PredictRequest, opts ...grpc.CallOption) (*PredictResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(PredictResponse)
+	err := c.cc.Invoke(ctx, MixtureService_Predict_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (c *mixtureServiceClient) CompareModels(ctx context.Context, in *CompareModelsRequest, opts ...grpc.CallOption) (*CompareModelsResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(CompareModelsResponse)
+	err := c.cc.Invoke(ctx, MixtureService_CompareModels_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
 func (c *mixtureServiceClient) GetModel(ctx context.Context, in *GetModelRequest, opts ...grpc.CallOption) (*GetModelResponse, error) {
 	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
 	out := new(GetModelResponse)
@@ -371,6 +401,14 @@ type MixtureServiceServer interface {
 	Sample(context.Context, *SampleRequest) (*SampleResponse, error)
 	// SampleStream draws rows in chunks; the rows equal those of Sample with the same seed.
 	SampleStream(*SampleStreamRequest, grpc.ServerStreamingServer[SampleStreamResponse]) error
+	// Predict returns, for rows with some features unobserved, the conditional
+	// distribution of the unobserved features given the observed ones: its
+	// mean, optionally its spread, per-component parts and seeded draws.
+	Predict(context.Context, *PredictRequest) (*PredictResponse, error)
+	// CompareModels compares two models, or two versions of one model, over the
+	// same features: Monte Carlo Kullback-Leibler divergences in both directions
+	// with standard errors, and a matching of their components.
+	CompareModels(context.Context, *CompareModelsRequest) (*CompareModelsResponse, error)
 	// GetModel returns one version of a model.
 	GetModel(context.Context, *GetModelRequest) (*GetModelResponse, error)
 	// ListModels lists the newest version of every model, by name.
@@ -432,6 +470,12 @@ func (UnimplementedMixtureServiceServer) Sample(context.Context, *SampleRequest)
 }
 func (UnimplementedMixtureServiceServer) SampleStream(*SampleStreamRequest, grpc.ServerStreamingServer[SampleStreamResponse]) error {
 	return status.Error(codes.Unimplemented, "method SampleStream not implemented")
+}
+func (UnimplementedMixtureServiceServer) Predict(context.Context, *PredictRequest) (*PredictResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method Predict not implemented")
+}
+func (UnimplementedMixtureServiceServer) CompareModels(context.Context, *CompareModelsRequest) (*CompareModelsResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method CompareModels not implemented")
 }
 func (UnimplementedMixtureServiceServer) GetModel(context.Context, *GetModelRequest) (*GetModelResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method GetModel not implemented")
@@ -636,6 +680,42 @@ func _MixtureService_SampleStream_Handler(srv interface{}, stream grpc.ServerStr
 // This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
 type MixtureService_SampleStreamServer = grpc.ServerStreamingServer[SampleStreamResponse]
 
+func _MixtureService_Predict_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(PredictRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(MixtureServiceServer).Predict(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: MixtureService_Predict_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(MixtureServiceServer).Predict(ctx, req.(*PredictRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
+func _MixtureService_CompareModels_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(CompareModelsRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(MixtureServiceServer).CompareModels(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: MixtureService_CompareModels_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(MixtureServiceServer).CompareModels(ctx, req.(*CompareModelsRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
 func _MixtureService_GetModel_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
 	in := new(GetModelRequest)
 	if err := dec(in); err != nil {
@@ -810,6 +890,14 @@ var MixtureService_ServiceDesc = grpc.ServiceDesc{
 		{
 			MethodName: "Sample",
 			Handler:    _MixtureService_Sample_Handler,
+		},
+		{
+			MethodName: "Predict",
+			Handler:    _MixtureService_Predict_Handler,
+		},
+		{
+			MethodName: "CompareModels",
+			Handler:    _MixtureService_CompareModels_Handler,
 		},
 		{
 			MethodName: "GetModel",

@@ -1232,12 +1232,12 @@ type FitSpec struct {
 	Model string `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
 	// Fitter name; empty means "em".
 	Fitter string `protobuf:"bytes,2,opt,name=fitter,proto3" json:"fitter,omitempty"`
-	// Number of components K (ignored when max_components > 0).
+	// Number of components K (ignored when components_max > 0).
 	Components int32 `protobuf:"varint,3,opt,name=components,proto3" json:"components,omitempty"`
-	// Fit every K in [min_components, max_components] and keep the best by `criterion`.
-	MinComponents int32 `protobuf:"varint,4,opt,name=min_components,json=minComponents,proto3" json:"min_components,omitempty"`
+	// Fit every K in [components_min, components_max] and keep the best by `criterion`.
+	ComponentsMin int32 `protobuf:"varint,4,opt,name=components_min,json=componentsMin,proto3" json:"components_min,omitempty"`
 	// Upper end of the component range; 0 means no range.
-	MaxComponents int32 `protobuf:"varint,5,opt,name=max_components,json=maxComponents,proto3" json:"max_components,omitempty"`
+	ComponentsMax int32 `protobuf:"varint,5,opt,name=components_max,json=componentsMax,proto3" json:"components_max,omitempty"`
 	// Criterion for choosing K.
 	Criterion Criterion `protobuf:"varint,6,opt,name=criterion,proto3,enum=mixd.v1.Criterion" json:"criterion,omitempty"`
 	// Component family.
@@ -1317,16 +1317,16 @@ func (x *FitSpec) GetComponents() int32 {
 	return 0
 }
 
-func (x *FitSpec) GetMinComponents() int32 {
+func (x *FitSpec) GetComponentsMin() int32 {
 	if x != nil {
-		return x.MinComponents
+		return x.ComponentsMin
 	}
 	return 0
 }
 
-func (x *FitSpec) GetMaxComponents() int32 {
+func (x *FitSpec) GetComponentsMax() int32 {
 	if x != nil {
-		return x.MaxComponents
+		return x.ComponentsMax
 	}
 	return 0
 }
@@ -1486,7 +1486,7 @@ type FitProgress struct {
 	Components int32 `protobuf:"varint,1,opt,name=components,proto3" json:"components,omitempty"`
 	// Restart index, from 0.
 	Restart int32 `protobuf:"varint,2,opt,name=restart,proto3" json:"restart,omitempty"`
-	// Iteration, from 1.
+	// Iteration: 0 reports the starting point, then 1, 2, ... after each iteration.
 	Iteration int32 `protobuf:"varint,3,opt,name=iteration,proto3" json:"iteration,omitempty"`
 	// Log-likelihood or variational bound after the iteration.
 	Objective float64 `protobuf:"fixed64,4,opt,name=objective,proto3" json:"objective,omitempty"`
@@ -1796,8 +1796,8 @@ const file_mixd_v1_types_proto_rawDesc = "" +
 	"\n" +
 	"components\x18\x03 \x01(\x05R\n" +
 	"components\x12%\n" +
-	"\x0emin_components\x18\x04 \x01(\x05R\rminComponents\x12%\n" +
-	"\x0emax_components\x18\x05 \x01(\x05R\rmaxComponents\x120\n" +
+	"\x0ecomponents_min\x18\x04 \x01(\x05R\rcomponentsMin\x12%\n" +
+	"\x0ecomponents_max\x18\x05 \x01(\x05R\rcomponentsMax\x120\n" +
 	"\tcriterion\x18\x06 \x01(\x0e2\x12.mixd.v1.CriterionR\tcriterion\x12'\n" +
 	"\x06family\x18\a \x01(\x0e2\x0f.mixd.v1.FamilyR\x06family\x12O\n" +
 	"\x14covariance_structure\x18\b \x01(\x0e2\x1c.mixd.v1.CovarianceStructureR\x13covarianceStructure\x12\x12\n" +

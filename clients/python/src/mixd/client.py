@@ -551,8 +551,8 @@ class Client:
         tolerance: float,
         restarts: int,
         ridge: Optional[float],
-        min_components: int,
-        max_components: int,
+        components_min: int,
+        components_max: int,
         criterion: Optional[str],
         feature_names: Optional[Sequence[str]],
         options: Optional[Mapping[str, Any]],
@@ -569,7 +569,7 @@ class Client:
         start_params: Optional[Parameters] = start.parameters if isinstance(start, Model) else start
         if start_params is not None:
             # The start fixes K, the structure and the family unless given.
-            if not components and not max_components:
+            if not components and not components_max:
                 components = start_params.components
             if structure is None:
                 structure = start_params.structure
@@ -579,8 +579,8 @@ class Client:
             model=model,
             fitter=fitter or "",
             components=int(components),
-            min_components=int(min_components),
-            max_components=int(max_components),
+            components_min=int(components_min),
+            components_max=int(components_max),
             criterion=_choice("criterion", criterion, _CRITERION_TO_PB),
             family=_choice("family", family, _FAMILY_TO_PB),
             covariance_structure=_choice("structure", structure, _STRUCTURE_TO_PB),
@@ -639,8 +639,8 @@ class Client:
         tolerance: float = 0.0,
         restarts: int = 0,
         ridge: Optional[float] = None,
-        min_components: int = 0,
-        max_components: int = 0,
+        components_min: int = 0,
+        components_max: int = 0,
         criterion: Optional[str] = None,
         feature_names: Optional[Sequence[str]] = None,
         options: Optional[Mapping[str, Any]] = None,
@@ -672,8 +672,8 @@ class Client:
             restarts: Independent starts; 0 is the fitter's default.
             ridge: Added to covariance diagonals; None is the fitter's
                 default, 0 is none.
-            min_components: Lower end of a range of K (with max_components).
-            max_components: Fit every K in the range and keep the best by
+            components_min: Lower end of a range of K (with components_max).
+            components_max: Fit every K in the range and keep the best by
                 ``criterion``; 0 means no range.
             criterion: "bic" (default) or "aic".
             feature_names: Names of the columns (default: a DataFrame's).
@@ -700,7 +700,7 @@ class Client:
         """
         spec, chunks = self._fit_parts(
             model, rows, components, fitter, structure, family, seed, max_iterations, tolerance, restarts,
-            ridge, min_components, max_components, criterion, feature_names, options, start, row_weights,
+            ridge, components_min, components_max, criterion, feature_names, options, start, row_weights,
             start_labels,
         )
 
@@ -761,8 +761,8 @@ class Client:
         tolerance: float = 0.0,
         restarts: int = 0,
         ridge: Optional[float] = None,
-        min_components: int = 0,
-        max_components: int = 0,
+        components_min: int = 0,
+        components_max: int = 0,
         criterion: Optional[str] = None,
         feature_names: Optional[Sequence[str]] = None,
         options: Optional[Mapping[str, Any]] = None,
@@ -780,7 +780,7 @@ class Client:
         """
         spec, chunks = self._fit_parts(
             model, rows, components, fitter, structure, family, seed, max_iterations, tolerance, restarts,
-            ridge, min_components, max_components, criterion, feature_names, options, start, row_weights,
+            ridge, components_min, components_max, criterion, feature_names, options, start, row_weights,
             start_labels,
         )
 

@@ -156,9 +156,9 @@ type Settings struct {
 	// Number of components.
 	Components int32 `protobuf:"varint,1,opt,name=components,proto3" json:"components,omitempty"`
 	// Component range lower end.
-	MinComponents int32 `protobuf:"varint,2,opt,name=min_components,json=minComponents,proto3" json:"min_components,omitempty"`
+	ComponentsMin int32 `protobuf:"varint,2,opt,name=components_min,json=componentsMin,proto3" json:"components_min,omitempty"`
 	// Component range upper end; 0 means no range.
-	MaxComponents int32 `protobuf:"varint,3,opt,name=max_components,json=maxComponents,proto3" json:"max_components,omitempty"`
+	ComponentsMax int32 `protobuf:"varint,3,opt,name=components_max,json=componentsMax,proto3" json:"components_max,omitempty"`
 	// Criterion for the range.
 	Criterion v1.Criterion `protobuf:"varint,4,opt,name=criterion,proto3,enum=mixd.v1.Criterion" json:"criterion,omitempty"`
 	// Family.
@@ -228,16 +228,16 @@ func (x *Settings) GetComponents() int32 {
 	return 0
 }
 
-func (x *Settings) GetMinComponents() int32 {
+func (x *Settings) GetComponentsMin() int32 {
 	if x != nil {
-		return x.MinComponents
+		return x.ComponentsMin
 	}
 	return 0
 }
 
-func (x *Settings) GetMaxComponents() int32 {
+func (x *Settings) GetComponentsMax() int32 {
 	if x != nil {
-		return x.MaxComponents
+		return x.ComponentsMax
 	}
 	return 0
 }
@@ -904,8 +904,8 @@ const file_mixd_fitter_v1_fitter_proto_rawDesc = "" +
 	"\n" +
 	"components\x18\x01 \x01(\x05R\n" +
 	"components\x12%\n" +
-	"\x0emin_components\x18\x02 \x01(\x05R\rminComponents\x12%\n" +
-	"\x0emax_components\x18\x03 \x01(\x05R\rmaxComponents\x120\n" +
+	"\x0ecomponents_min\x18\x02 \x01(\x05R\rcomponentsMin\x12%\n" +
+	"\x0ecomponents_max\x18\x03 \x01(\x05R\rcomponentsMax\x120\n" +
 	"\tcriterion\x18\x04 \x01(\x0e2\x12.mixd.v1.CriterionR\tcriterion\x12'\n" +
 	"\x06family\x18\x05 \x01(\x0e2\x0f.mixd.v1.FamilyR\x06family\x12O\n" +
 	"\x14covariance_structure\x18\x06 \x01(\x0e2\x1c.mixd.v1.CovarianceStructureR\x13covarianceStructure\x12\x12\n" +

@@ -98,20 +98,22 @@ class ListFitJobsResponse(_message.Message):
     def __init__(self, jobs: _Optional[_Iterable[_Union[_types_pb2.FitJob, _Mapping]]] = ..., next_page_token: _Optional[str] = ...) -> None: ...
 
 class ScoreRequest(_message.Message):
-    __slots__ = ("model", "version", "rows", "include_component_log_densities", "response_encoding", "outlier_level")
+    __slots__ = ("model", "version", "rows", "include_component_log_densities", "response_encoding", "outlier_level", "observed_mask")
     MODEL_FIELD_NUMBER: _ClassVar[int]
     VERSION_FIELD_NUMBER: _ClassVar[int]
     ROWS_FIELD_NUMBER: _ClassVar[int]
     INCLUDE_COMPONENT_LOG_DENSITIES_FIELD_NUMBER: _ClassVar[int]
     RESPONSE_ENCODING_FIELD_NUMBER: _ClassVar[int]
     OUTLIER_LEVEL_FIELD_NUMBER: _ClassVar[int]
+    OBSERVED_MASK_FIELD_NUMBER: _ClassVar[int]
     model: str
     version: int
     rows: _types_pb2.Matrix
     include_component_log_densities: bool
     response_encoding: _types_pb2.MatrixEncoding
     outlier_level: float
-    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., include_component_log_densities: _Optional[bool] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ..., outlier_level: _Optional[float] = ...) -> None: ...
+    observed_mask: bytes
+    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., include_component_log_densities: _Optional[bool] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ..., outlier_level: _Optional[float] = ..., observed_mask: _Optional[bytes] = ...) -> None: ...
 
 class ScoreResponse(_message.Message):
     __slots__ = ("model", "version", "log_densities", "percentiles", "component_log_densities", "log_likelihood", "outlier_statistics", "outliers")
@@ -134,20 +136,22 @@ class ScoreResponse(_message.Message):
     def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., log_densities: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., percentiles: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., component_log_densities: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., log_likelihood: _Optional[float] = ..., outlier_statistics: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., outliers: _Optional[_Iterable[bool]] = ...) -> None: ...
 
 class ScoreStreamRequest(_message.Message):
-    __slots__ = ("model", "version", "rows", "include_component_log_densities", "response_encoding", "outlier_level")
+    __slots__ = ("model", "version", "rows", "include_component_log_densities", "response_encoding", "outlier_level", "observed_mask")
     MODEL_FIELD_NUMBER: _ClassVar[int]
     VERSION_FIELD_NUMBER: _ClassVar[int]
     ROWS_FIELD_NUMBER: _ClassVar[int]
     INCLUDE_COMPONENT_LOG_DENSITIES_FIELD_NUMBER: _ClassVar[int]
     RESPONSE_ENCODING_FIELD_NUMBER: _ClassVar[int]
     OUTLIER_LEVEL_FIELD_NUMBER: _ClassVar[int]
+    OBSERVED_MASK_FIELD_NUMBER: _ClassVar[int]
     model: str
     version: int
     rows: _types_pb2.Matrix
     include_component_log_densities: bool
     response_encoding: _types_pb2.MatrixEncoding
     outlier_level: float
-    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., include_component_log_densities: _Optional[bool] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ..., outlier_level: _Optional[float] = ...) -> None: ...
+    observed_mask: bytes
+    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., include_component_log_densities: _Optional[bool] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ..., outlier_level: _Optional[float] = ..., observed_mask: _Optional[bytes] = ...) -> None: ...
 
 class ScoreStreamResponse(_message.Message):
     __slots__ = ("model", "version", "log_densities", "percentiles", "component_log_densities", "log_likelihood", "outlier_statistics", "outliers")
@@ -170,20 +174,22 @@ class ScoreStreamResponse(_message.Message):
     def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., log_densities: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., percentiles: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., component_log_densities: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., log_likelihood: _Optional[float] = ..., outlier_statistics: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., outliers: _Optional[_Iterable[bool]] = ...) -> None: ...
 
 class ClassifyRequest(_message.Message):
-    __slots__ = ("model", "version", "rows", "min_posterior", "include_posteriors", "response_encoding")
+    __slots__ = ("model", "version", "rows", "min_posterior", "include_posteriors", "response_encoding", "observed_mask")
     MODEL_FIELD_NUMBER: _ClassVar[int]
     VERSION_FIELD_NUMBER: _ClassVar[int]
     ROWS_FIELD_NUMBER: _ClassVar[int]
     MIN_POSTERIOR_FIELD_NUMBER: _ClassVar[int]
     INCLUDE_POSTERIORS_FIELD_NUMBER: _ClassVar[int]
     RESPONSE_ENCODING_FIELD_NUMBER: _ClassVar[int]
+    OBSERVED_MASK_FIELD_NUMBER: _ClassVar[int]
     model: str
     version: int
     rows: _types_pb2.Matrix
     min_posterior: float
     include_posteriors: bool
     response_encoding: _types_pb2.MatrixEncoding
-    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., min_posterior: _Optional[float] = ..., include_posteriors: _Optional[bool] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ...) -> None: ...
+    observed_mask: bytes
+    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., min_posterior: _Optional[float] = ..., include_posteriors: _Optional[bool] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ..., observed_mask: _Optional[bytes] = ...) -> None: ...
 
 class ClassifyResponse(_message.Message):
     __slots__ = ("model", "version", "components", "max_posteriors", "posteriors", "confident")
@@ -202,20 +208,22 @@ class ClassifyResponse(_message.Message):
     def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., components: _Optional[_Union[_types_pb2.Labels, _Mapping]] = ..., max_posteriors: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., posteriors: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., confident: _Optional[_Iterable[bool]] = ...) -> None: ...
 
 class ClassifyStreamRequest(_message.Message):
-    __slots__ = ("model", "version", "rows", "min_posterior", "include_posteriors", "response_encoding")
+    __slots__ = ("model", "version", "rows", "min_posterior", "include_posteriors", "response_encoding", "observed_mask")
     MODEL_FIELD_NUMBER: _ClassVar[int]
     VERSION_FIELD_NUMBER: _ClassVar[int]
     ROWS_FIELD_NUMBER: _ClassVar[int]
     MIN_POSTERIOR_FIELD_NUMBER: _ClassVar[int]
     INCLUDE_POSTERIORS_FIELD_NUMBER: _ClassVar[int]
     RESPONSE_ENCODING_FIELD_NUMBER: _ClassVar[int]
+    OBSERVED_MASK_FIELD_NUMBER: _ClassVar[int]
     model: str
     version: int
     rows: _types_pb2.Matrix
     min_posterior: float
     include_posteriors: bool
     response_encoding: _types_pb2.MatrixEncoding
-    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., min_posterior: _Optional[float] = ..., include_posteriors: _Optional[bool] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ...) -> None: ...
+    observed_mask: bytes
+    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., min_posterior: _Optional[float] = ..., include_posteriors: _Optional[bool] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ..., observed_mask: _Optional[bytes] = ...) -> None: ...
 
 class ClassifyStreamResponse(_message.Message):
     __slots__ = ("model", "version", "components", "max_posteriors", "posteriors", "confident")
@@ -286,6 +294,120 @@ class SampleStreamResponse(_message.Message):
     rows: _types_pb2.Matrix
     components: _types_pb2.Labels
     def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., components: _Optional[_Union[_types_pb2.Labels, _Mapping]] = ...) -> None: ...
+
+class PredictRequest(_message.Message):
+    __slots__ = ("model", "version", "rows", "observed_mask", "include_standard_deviations", "include_covariances", "include_components", "include_component_scales", "draws", "seed", "first_row", "response_encoding")
+    MODEL_FIELD_NUMBER: _ClassVar[int]
+    VERSION_FIELD_NUMBER: _ClassVar[int]
+    ROWS_FIELD_NUMBER: _ClassVar[int]
+    OBSERVED_MASK_FIELD_NUMBER: _ClassVar[int]
+    INCLUDE_STANDARD_DEVIATIONS_FIELD_NUMBER: _ClassVar[int]
+    INCLUDE_COVARIANCES_FIELD_NUMBER: _ClassVar[int]
+    INCLUDE_COMPONENTS_FIELD_NUMBER: _ClassVar[int]
+    INCLUDE_COMPONENT_SCALES_FIELD_NUMBER: _ClassVar[int]
+    DRAWS_FIELD_NUMBER: _ClassVar[int]
+    SEED_FIELD_NUMBER: _ClassVar[int]
+    FIRST_ROW_FIELD_NUMBER: _ClassVar[int]
+    RESPONSE_ENCODING_FIELD_NUMBER: _ClassVar[int]
+    model: str
+    version: int
+    rows: _types_pb2.Matrix
+    observed_mask: bytes
+    include_standard_deviations: bool
+    include_covariances: bool
+    include_components: bool
+    include_component_scales: bool
+    draws: int
+    seed: int
+    first_row: int
+    response_encoding: _types_pb2.MatrixEncoding
+    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., rows: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., observed_mask: _Optional[bytes] = ..., include_standard_deviations: _Optional[bool] = ..., include_covariances: _Optional[bool] = ..., include_components: _Optional[bool] = ..., include_component_scales: _Optional[bool] = ..., draws: _Optional[int] = ..., seed: _Optional[int] = ..., first_row: _Optional[int] = ..., response_encoding: _Optional[_Union[_types_pb2.MatrixEncoding, str]] = ...) -> None: ...
+
+class PredictResponse(_message.Message):
+    __slots__ = ("model", "version", "means", "standard_deviations", "covariances", "log_densities", "posteriors", "component_means", "component_degrees_of_freedom", "component_scales", "draws")
+    MODEL_FIELD_NUMBER: _ClassVar[int]
+    VERSION_FIELD_NUMBER: _ClassVar[int]
+    MEANS_FIELD_NUMBER: _ClassVar[int]
+    STANDARD_DEVIATIONS_FIELD_NUMBER: _ClassVar[int]
+    COVARIANCES_FIELD_NUMBER: _ClassVar[int]
+    LOG_DENSITIES_FIELD_NUMBER: _ClassVar[int]
+    POSTERIORS_FIELD_NUMBER: _ClassVar[int]
+    COMPONENT_MEANS_FIELD_NUMBER: _ClassVar[int]
+    COMPONENT_DEGREES_OF_FREEDOM_FIELD_NUMBER: _ClassVar[int]
+    COMPONENT_SCALES_FIELD_NUMBER: _ClassVar[int]
+    DRAWS_FIELD_NUMBER: _ClassVar[int]
+    model: str
+    version: int
+    means: _types_pb2.Matrix
+    standard_deviations: _types_pb2.Matrix
+    covariances: _types_pb2.Matrix
+    log_densities: _types_pb2.Matrix
+    posteriors: _types_pb2.Matrix
+    component_means: _types_pb2.Matrix
+    component_degrees_of_freedom: _types_pb2.Matrix
+    component_scales: _types_pb2.Matrix
+    draws: _types_pb2.Matrix
+    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., means: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., standard_deviations: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., covariances: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., log_densities: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., posteriors: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., component_means: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., component_degrees_of_freedom: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., component_scales: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ..., draws: _Optional[_Union[_types_pb2.Matrix, _Mapping]] = ...) -> None: ...
+
+class CompareModelsRequest(_message.Message):
+    __slots__ = ("model", "version", "other_model", "other_version", "samples", "seed")
+    MODEL_FIELD_NUMBER: _ClassVar[int]
+    VERSION_FIELD_NUMBER: _ClassVar[int]
+    OTHER_MODEL_FIELD_NUMBER: _ClassVar[int]
+    OTHER_VERSION_FIELD_NUMBER: _ClassVar[int]
+    SAMPLES_FIELD_NUMBER: _ClassVar[int]
+    SEED_FIELD_NUMBER: _ClassVar[int]
+    model: str
+    version: int
+    other_model: str
+    other_version: int
+    samples: int
+    seed: int
+    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., other_model: _Optional[str] = ..., other_version: _Optional[int] = ..., samples: _Optional[int] = ..., seed: _Optional[int] = ...) -> None: ...
+
+class CompareModelsResponse(_message.Message):
+    __slots__ = ("model", "version", "other_model", "other_version", "samples", "kl_forward", "kl_forward_standard_error", "kl_backward", "kl_backward_standard_error", "matches", "unmatched_components", "unmatched_other_components", "component_distance")
+    MODEL_FIELD_NUMBER: _ClassVar[int]
+    VERSION_FIELD_NUMBER: _ClassVar[int]
+    OTHER_MODEL_FIELD_NUMBER: _ClassVar[int]
+    OTHER_VERSION_FIELD_NUMBER: _ClassVar[int]
+    SAMPLES_FIELD_NUMBER: _ClassVar[int]
+    KL_FORWARD_FIELD_NUMBER: _ClassVar[int]
+    KL_FORWARD_STANDARD_ERROR_FIELD_NUMBER: _ClassVar[int]
+    KL_BACKWARD_FIELD_NUMBER: _ClassVar[int]
+    KL_BACKWARD_STANDARD_ERROR_FIELD_NUMBER: _ClassVar[int]
+    MATCHES_FIELD_NUMBER: _ClassVar[int]
+    UNMATCHED_COMPONENTS_FIELD_NUMBER: _ClassVar[int]
+    UNMATCHED_OTHER_COMPONENTS_FIELD_NUMBER: _ClassVar[int]
+    COMPONENT_DISTANCE_FIELD_NUMBER: _ClassVar[int]
+    model: str
+    version: int
+    other_model: str
+    other_version: int
+    samples: int
+    kl_forward: float
+    kl_forward_standard_error: float
+    kl_backward: float
+    kl_backward_standard_error: float
+    matches: _containers.RepeatedCompositeFieldContainer[ComponentMatch]
+    unmatched_components: _containers.RepeatedScalarFieldContainer[int]
+    unmatched_other_components: _containers.RepeatedScalarFieldContainer[int]
+    component_distance: str
+    def __init__(self, model: _Optional[str] = ..., version: _Optional[int] = ..., other_model: _Optional[str] = ..., other_version: _Optional[int] = ..., samples: _Optional[int] = ..., kl_forward: _Optional[float] = ..., kl_forward_standard_error: _Optional[float] = ..., kl_backward: _Optional[float] = ..., kl_backward_standard_error: _Optional[float] = ..., matches: _Optional[_Iterable[_Union[ComponentMatch, _Mapping]]] = ..., unmatched_components: _Optional[_Iterable[int]] = ..., unmatched_other_components: _Optional[_Iterable[int]] = ..., component_distance: _Optional[str] = ...) -> None: ...
+
+class ComponentMatch(_message.Message):
+    __slots__ = ("component", "other_component", "distance", "weight", "other_weight")
+    COMPONENT_FIELD_NUMBER: _ClassVar[int]
+    OTHER_COMPONENT_FIELD_NUMBER: _ClassVar[int]
+    DISTANCE_FIELD_NUMBER: _ClassVar[int]
+    WEIGHT_FIELD_NUMBER: _ClassVar[int]
+    OTHER_WEIGHT_FIELD_NUMBER: _ClassVar[int]
+    component: int
+    other_component: int
+    distance: float
+    weight: float
+    other_weight: float
+    def __init__(self, component: _Optional[int] = ..., other_component: _Optional[int] = ..., distance: _Optional[float] = ..., weight: _Optional[float] = ..., other_weight: _Optional[float] = ...) -> None: ...
 
 class GetModelRequest(_message.Message):
     __slots__ = ("name", "version")

@@ -99,6 +99,16 @@ class MixtureServiceStub:
                 request_serializer=mixd_dot_v1_dot_mixture__service__pb2.SampleStreamRequest.SerializeToString,
                 response_deserializer=mixd_dot_v1_dot_mixture__service__pb2.SampleStreamResponse.FromString,
                 _registered_method=True)
+        self.Predict = channel.unary_unary(
+                '/mixd.v1.MixtureService/Predict',
+                request_serializer=mixd_dot_v1_dot_mixture__service__pb2.PredictRequest.SerializeToString,
+                response_deserializer=mixd_dot_v1_dot_mixture__service__pb2.PredictResponse.FromString,
+                _registered_method=True)
+        self.CompareModels = channel.unary_unary(
+                '/mixd.v1.MixtureService/CompareModels',
+                request_serializer=mixd_dot_v1_dot_mixture__service__pb2.CompareModelsRequest.SerializeToString,
+                response_deserializer=mixd_dot_v1_dot_mixture__service__pb2.CompareModelsResponse.FromString,
+                _registered_method=True)
         self.GetModel = channel.unary_unary(
                 '/mixd.v1.MixtureService/GetModel',
                 request_serializer=mixd_dot_v1_dot_mixture__service__pb2.GetModelRequest.SerializeToString,
@@ -236,6 +246,24 @@ class MixtureServiceServicer:
         context.set_details('Method not implemented!')
         raise NotImplementedError('Method not implemented!')
 
+    def Predict(self, request, context):
+        """Predict returns, for rows with some features unobserved, the conditional
+        distribution of the unobserved features given the observed ones: its
+        mean, optionally its spread, per-component parts and seeded draws.
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
+    def CompareModels(self, request, context):
+        """CompareModels compares two models, or two versions of one model, over the
+        same features: Monte Carlo Kullback-Leibler divergences in both directions
+        with standard errors, and a matching of their components.
+        """
+        context.set_code(grpc.StatusCode.UNIMPLEMENTED)
+        context.set_details('Method not implemented!')
+        raise NotImplementedError('Method not implemented!')
+
     def GetModel(self, request, context):
         """GetModel returns one version of a model.
         """
@@ -354,6 +382,16 @@ def add_MixtureServiceServicer_to_server(servicer, server):
                     servicer.SampleStream,
                     request_deserializer=mixd_dot_v1_dot_mixture__service__pb2.SampleStreamRequest.FromString,
                     response_serializer=mixd_dot_v1_dot_mixture__service__pb2.SampleStreamResponse.SerializeToString,
+            ),
+            'Predict': grpc.unary_unary_rpc_method_handler(
+                    servicer.Predict,
+                    request_deserializer=mixd_dot_v1_dot_mixture__service__pb2.PredictRequest.FromString,
+                    response_serializer=mixd_dot_v1_dot_mixture__service__pb2.PredictResponse.SerializeToString,
+            ),
+            'CompareModels': grpc.unary_unary_rpc_method_handler(
+                    servicer.CompareModels,
+                    request_deserializer=mixd_dot_v1_dot_mixture__service__pb2.CompareModelsRequest.FromString,
+                    response_serializer=mixd_dot_v1_dot_mixture__service__pb2.CompareModelsResponse.SerializeToString,
             ),
             'GetModel': grpc.unary_unary_rpc_method_handler(
                     servicer.GetModel,
@@ -725,6 +763,60 @@ class MixtureService:
             '/mixd.v1.MixtureService/SampleStream',
             mixd_dot_v1_dot_mixture__service__pb2.SampleStreamRequest.SerializeToString,
             mixd_dot_v1_dot_mixture__service__pb2.SampleStreamResponse.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def Predict(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/mixd.v1.MixtureService/Predict',
+            mixd_dot_v1_dot_mixture__service__pb2.PredictRequest.SerializeToString,
+            mixd_dot_v1_dot_mixture__service__pb2.PredictResponse.FromString,
+            options,
+            channel_credentials,
+            insecure,
+            call_credentials,
+            compression,
+            wait_for_ready,
+            timeout,
+            metadata,
+            _registered_method=True)
+
+    @staticmethod
+    def CompareModels(request,
+            target,
+            options=(),
+            channel_credentials=None,
+            call_credentials=None,
+            insecure=False,
+            compression=None,
+            wait_for_ready=None,
+            timeout=None,
+            metadata=None):
+        return grpc.experimental.unary_unary(
+            request,
+            target,
+            '/mixd.v1.MixtureService/CompareModels',
+            mixd_dot_v1_dot_mixture__service__pb2.CompareModelsRequest.SerializeToString,
+            mixd_dot_v1_dot_mixture__service__pb2.CompareModelsResponse.FromString,
             options,
             channel_credentials,
             insecure,

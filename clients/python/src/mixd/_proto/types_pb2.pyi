@@ -234,7 +234,7 @@ class FitterInfo(_message.Message):
     def __init__(self, name: _Optional[str] = ..., version: _Optional[str] = ..., description: _Optional[str] = ..., families: _Optional[_Iterable[_Union[Family, str]]] = ..., covariance_structures: _Optional[_Iterable[_Union[CovarianceStructure, str]]] = ..., options: _Optional[_Iterable[_Union[FitterOption, _Mapping]]] = ..., source: _Optional[str] = ..., sha256: _Optional[str] = ...) -> None: ...
 
 class FitSpec(_message.Message):
-    __slots__ = ("model", "fitter", "components", "min_components", "max_components", "criterion", "family", "covariance_structure", "seed", "max_iterations", "tolerance", "restarts", "ridge", "feature_names", "options", "start_parameters", "expected_rows")
+    __slots__ = ("model", "fitter", "components", "components_min", "components_max", "criterion", "family", "covariance_structure", "seed", "max_iterations", "tolerance", "restarts", "ridge", "feature_names", "options", "start_parameters", "expected_rows")
     class OptionsEntry(_message.Message):
         __slots__ = ("key", "value")
         KEY_FIELD_NUMBER: _ClassVar[int]
@@ -245,8 +245,8 @@ class FitSpec(_message.Message):
     MODEL_FIELD_NUMBER: _ClassVar[int]
     FITTER_FIELD_NUMBER: _ClassVar[int]
     COMPONENTS_FIELD_NUMBER: _ClassVar[int]
-    MIN_COMPONENTS_FIELD_NUMBER: _ClassVar[int]
-    MAX_COMPONENTS_FIELD_NUMBER: _ClassVar[int]
+    COMPONENTS_MIN_FIELD_NUMBER: _ClassVar[int]
+    COMPONENTS_MAX_FIELD_NUMBER: _ClassVar[int]
     CRITERION_FIELD_NUMBER: _ClassVar[int]
     FAMILY_FIELD_NUMBER: _ClassVar[int]
     COVARIANCE_STRUCTURE_FIELD_NUMBER: _ClassVar[int]
@@ -262,8 +262,8 @@ class FitSpec(_message.Message):
     model: str
     fitter: str
     components: int
-    min_components: int
-    max_components: int
+    components_min: int
+    components_max: int
     criterion: Criterion
     family: Family
     covariance_structure: CovarianceStructure
@@ -276,7 +276,7 @@ class FitSpec(_message.Message):
     options: _containers.ScalarMap[str, str]
     start_parameters: Parameters
     expected_rows: int
-    def __init__(self, model: _Optional[str] = ..., fitter: _Optional[str] = ..., components: _Optional[int] = ..., min_components: _Optional[int] = ..., max_components: _Optional[int] = ..., criterion: _Optional[_Union[Criterion, str]] = ..., family: _Optional[_Union[Family, str]] = ..., covariance_structure: _Optional[_Union[CovarianceStructure, str]] = ..., seed: _Optional[int] = ..., max_iterations: _Optional[int] = ..., tolerance: _Optional[float] = ..., restarts: _Optional[int] = ..., ridge: _Optional[float] = ..., feature_names: _Optional[_Iterable[str]] = ..., options: _Optional[_Mapping[str, str]] = ..., start_parameters: _Optional[_Union[Parameters, _Mapping]] = ..., expected_rows: _Optional[int] = ...) -> None: ...
+    def __init__(self, model: _Optional[str] = ..., fitter: _Optional[str] = ..., components: _Optional[int] = ..., components_min: _Optional[int] = ..., components_max: _Optional[int] = ..., criterion: _Optional[_Union[Criterion, str]] = ..., family: _Optional[_Union[Family, str]] = ..., covariance_structure: _Optional[_Union[CovarianceStructure, str]] = ..., seed: _Optional[int] = ..., max_iterations: _Optional[int] = ..., tolerance: _Optional[float] = ..., restarts: _Optional[int] = ..., ridge: _Optional[float] = ..., feature_names: _Optional[_Iterable[str]] = ..., options: _Optional[_Mapping[str, str]] = ..., start_parameters: _Optional[_Union[Parameters, _Mapping]] = ..., expected_rows: _Optional[int] = ...) -> None: ...
 
 class FitChunk(_message.Message):
     __slots__ = ("data", "row_weights", "start_labels")
