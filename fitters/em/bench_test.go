@@ -9,6 +9,8 @@ import (
 
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/mixture"
+
+	"github.com/mixd-dev/mixd/fitters/internal/testkit"
 )
 
 // benchData draws n rows of d features from eight well-spread Gaussian
@@ -56,7 +58,7 @@ func BenchmarkIteration(b *testing.B) {
 			ps := newPass(p, 8)
 			res := &runResult{}
 			b.ResetTimer()
-			start, cpu := time.Now(), processCPU()
+			start, cpu := time.Now(), testkit.ProcessCPU()
 			iters := 0
 			for b.Loop() {
 				ps.run(st)
@@ -64,7 +66,7 @@ func BenchmarkIteration(b *testing.B) {
 				iters++
 			}
 			b.ReportMetric(float64(time.Since(start).Microseconds())/1000/float64(iters), "ms/iter")
-			b.ReportMetric(float64((processCPU()-cpu).Microseconds())/1000/float64(iters), "cpu-ms/iter")
+			b.ReportMetric(float64((testkit.ProcessCPU()-cpu).Microseconds())/1000/float64(iters), "cpu-ms/iter")
 		})
 	}
 }

@@ -242,6 +242,6 @@ func resolve(_ fitters.Data, s fitters.Settings, p *problem) (*config, error) {
 func (c *config) echo(components []mixture.Component) map[string]string {
 	m := settings.Echo(mixture.Gaussian, c.Basics, len(components), c.seed, c.ridgeText, c.start.Kind)
 	m[optMinRows] = settings.Float(c.minRows)
-	settings.EchoRange(m, c.k, c.Criterion, "components_min", "components_max")
+	settings.EchoRange(m, c.k, c.Criterion)
 	return m
 }

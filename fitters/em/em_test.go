@@ -14,6 +14,8 @@ import (
 
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/mixture"
+
+	"github.com/mixd-dev/mixd/fitters/internal/testkit"
 )
 
 var allStructures = []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical, mixture.Tied}
@@ -47,7 +49,7 @@ func TestDescribe(t *testing.T) {
 // log-likelihood at the current parameters (Dempster, Laird and Rubin, 1977;
 // common practice). Allowed slack is rounding only.
 func TestMonotone(t *testing.T) {
-	faithful := loadFaithful(t)
+	faithful := testkit.Faithful(t)
 	pump2, _ := pumpTruth(2).sample(800, 11)
 	pump3, _ := pumpTruth(3).sample(1500, 12)
 	weighted, _ := pumpTruth(3).sample(700, 13)
@@ -100,7 +102,7 @@ func TestMonotone(t *testing.T) {
 // has the same single variance parameter, so the fits, their
 // log-likelihoods and their BIC coincide (common practice).
 func TestSingleComponentOneDimension(t *testing.T) {
-	f := loadFaithful(t)
+	f := testkit.Faithful(t)
 	waiting := fitters.Data{Rows: f.Rows, Cols: 1}
 	for i := 0; i < f.Rows; i++ {
 		waiting.Values = append(waiting.Values, f.Values[2*i+1])
@@ -428,7 +430,7 @@ func TestProgressAndReport(t *testing.T) {
 // maximum-likelihood covariance plus the default ridge, 1e-6 × each
 // feature's variance on the diagonal.
 func TestDefaultRidge(t *testing.T) {
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	res, err := New().Fit(context.Background(), data, fitters.Settings{Components: 1, Ridge: -1}, nil)
 	if err != nil {
 		t.Fatal(err)

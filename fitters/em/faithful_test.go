@@ -9,6 +9,8 @@ import (
 
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/mixture"
+
+	"github.com/mixd-dev/mixd/fitters/internal/testkit"
 )
 
 // faithfulReference is testdata/em/faithful_reference.json, written by
@@ -69,7 +71,7 @@ func faithfulStart(data fitters.Data, s mixture.Structure) *mixture.Params {
 
 func fitFaithful(t *testing.T, s mixture.Structure) (*fitters.Result, fitters.Data) {
 	t.Helper()
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	res, err := New().Fit(context.Background(), data, fitters.Settings{
 		Components:    2,
 		Structure:     s,
@@ -105,7 +107,7 @@ func TestFaithfulLogLikelihood(t *testing.T) {
 // (testdata/em/faithful_reference.json, made by make_reference.py).
 func TestFaithfulMatchesReference(t *testing.T) {
 	ref := loadReference(t)
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	for _, fit := range ref.Fits {
 		t.Run(fit.Structure, func(t *testing.T) {
 			s, err := mixture.ParseStructure(fit.Structure)

@@ -238,7 +238,7 @@ func (c *config) echo(components int) map[string]string {
 		m[optDFFloor] = fmtFloat(c.dfFloor)
 		m[optDFCap] = fmtFloat(c.dfCap)
 	}
-	settings.EchoRange(m, c.k, c.Criterion, "components_min", "components_max")
+	settings.EchoRange(m, c.k, c.Criterion)
 	return m
 }
 

@@ -1,54 +1,14 @@
 package tmix
 
 import (
-	"bufio"
 	"encoding/json"
 	"math"
 	"os"
-	"strconv"
-	"strings"
 	"testing"
 
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/mixture"
 )
-
-// loadFaithful reads testdata/faithful.csv (provenance: testdata/faithful.md).
-func loadFaithful(t testing.TB) fitters.Data {
-	t.Helper()
-	f, err := os.Open("../../testdata/faithful.csv")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	sc := bufio.NewScanner(f)
-	var vals []float64
-	rows := 0
-	for line := 0; sc.Scan(); line++ {
-		if line == 0 {
-			continue // header
-		}
-		parts := strings.Split(strings.TrimSpace(sc.Text()), ",")
-		if len(parts) != 2 {
-			t.Fatalf("faithful.csv line %d: %q", line+1, sc.Text())
-		}
-		for _, s := range parts {
-			v, err := strconv.ParseFloat(s, 64)
-			if err != nil {
-				t.Fatalf("faithful.csv line %d: %v", line+1, err)
-			}
-			vals = append(vals, v)
-		}
-		rows++
-	}
-	if err := sc.Err(); err != nil {
-		t.Fatal(err)
-	}
-	if rows != 272 {
-		t.Fatalf("faithful.csv has %d rows, want 272", rows)
-	}
-	return fitters.Data{Rows: rows, Cols: 2, Values: vals}
-}
 
 // reference is testdata/tmix/reference.json, written by
 // testdata/tmix/make_reference.py (the outlier-rule parts are read by the

@@ -10,6 +10,8 @@ import (
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/em"
 	"github.com/mixd-dev/mixd/fitters/mixture"
+
+	"github.com/mixd-dev/mixd/fitters/internal/testkit"
 )
 
 var allStructures = []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical, mixture.Tied}
@@ -93,7 +95,7 @@ func faithfulStart(clean fitters.Data) *mixture.Params {
 // standard deviations, to 1e-5, and the log-likelihood to 1e-3 (the Student-t density at
 // ν = 1e6 differs from the Gaussian by O(1/ν) per row).
 func TestLargeDFMatchesEM(t *testing.T) {
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	for _, s := range allStructures {
 		t.Run(s.String(), func(t *testing.T) {
 			start := faithfulStart(data)
@@ -167,7 +169,7 @@ var faithfulGrossErrors = []float64{
 // four appended rows and none of the 272 original ones. Both fitters start
 // from faithfulStart. Default options (ECME, one shared ν).
 func TestFaithfulGrossErrors(t *testing.T) {
-	clean := loadFaithful(t)
+	clean := testkit.Faithful(t)
 	dirty := fitters.Data{Rows: clean.Rows + len(faithfulGrossErrors)/2, Cols: 2,
 		Values: append(append([]float64(nil), clean.Values...), faithfulGrossErrors...)}
 	set := fitters.Settings{Components: 2, Start: faithfulStart(clean), Ridge: 0, Tolerance: 1e-12, MaxIterations: 10000}
@@ -247,7 +249,7 @@ func TestFaithfulGrossErrors(t *testing.T) {
 // either (Meng and Rubin, 1993; Liu and Rubin, 1995). Allowed slack is
 // rounding only.
 func TestMonotone(t *testing.T) {
-	faithful := loadFaithful(t)
+	faithful := testkit.Faithful(t)
 	pump3, _ := sample(pumpModel(t, 3, []float64{2.5, 5, 12}), 1500, 22)
 	weighted, _ := sample(pumpModel(t, 3, []float64{4, 4, 4}), 700, 23)
 	weighted.Weights = make([]float64, weighted.Rows)

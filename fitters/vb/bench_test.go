@@ -7,6 +7,8 @@ import (
 
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/mixture"
+
+	"github.com/mixd-dev/mixd/fitters/internal/testkit"
 )
 
 // BenchmarkIteration times one full iteration (responsibilities and
@@ -60,7 +62,7 @@ func BenchmarkIteration(b *testing.B) {
 	}
 	b.ReportAllocs()
 	b.ResetTimer()
-	start, cpu := time.Now(), processCPU()
+	start, cpu := time.Now(), testkit.ProcessCPU()
 	iters := 0
 	for b.Loop() {
 		iters++
@@ -73,5 +75,5 @@ func BenchmarkIteration(b *testing.B) {
 		_ = e.bound(st, q, scr)
 	}
 	b.ReportMetric(float64(time.Since(start).Microseconds())/1000/float64(iters), "ms/iter")
-	b.ReportMetric(float64((processCPU()-cpu).Microseconds())/1000/float64(iters), "cpu-ms/iter")
+	b.ReportMetric(float64((testkit.ProcessCPU()-cpu).Microseconds())/1000/float64(iters), "cpu-ms/iter")
 }

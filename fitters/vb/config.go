@@ -319,7 +319,7 @@ func (c *config) echo(p *problem, k int) map[string]string {
 	m["wishart_inverse_scale_source"] = c.s0Text
 	m[OptServedModel] = c.served
 	m[OptMinRows] = fmtFloat(c.minRows)
-	settings.EchoRange(m, c.k, c.Criterion, "components_min", "components_max")
+	settings.EchoRange(m, c.k, c.Criterion)
 	return m
 }
 

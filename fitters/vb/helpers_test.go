@@ -1,42 +1,12 @@
 package vb
 
 import (
-	"encoding/csv"
 	"math"
 	"math/rand/v2"
-	"os"
-	"path/filepath"
-	"strconv"
 	"testing"
 
 	"github.com/mixd-dev/mixd/fitters"
 )
-
-// loadFaithful reads testdata/faithful.csv (Old Faithful, 272 rows: eruption
-// duration and waiting time; provenance in testdata/faithful.md).
-func loadFaithful(t testing.TB) fitters.Data {
-	t.Helper()
-	f, err := os.Open(filepath.Join("..", "..", "testdata", "faithful.csv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	recs, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	var vals []float64
-	for _, r := range recs[1:] {
-		for _, s := range r {
-			v, err := strconv.ParseFloat(s, 64)
-			if err != nil {
-				t.Fatal(err)
-			}
-			vals = append(vals, v)
-		}
-	}
-	return fitters.Data{Rows: len(recs) - 1, Cols: 2, Values: vals}
-}
 
 // faithfulLabels reproduces the labelling rules of testdata/vb/make_reference.py.
 func faithfulLabels(t testing.TB, data fitters.Data, rule string) []int {

@@ -9,6 +9,8 @@ import (
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/em"
 	"github.com/mixd-dev/mixd/fitters/mixture"
+
+	"github.com/mixd-dev/mixd/fitters/internal/testkit"
 )
 
 // threeBlobs is a known 3-component model in two dimensions.
@@ -22,7 +24,7 @@ var threeBlobs = []blob{
 // fall by more than a relative 1e-10 (coordinate ascent on the bound is
 // monotone: Bishop 2006, section 10.2.4), on several data sets and settings.
 func TestBoundNeverDecreases(t *testing.T) {
-	faithful := loadFaithful(t)
+	faithful := testkit.Faithful(t)
 	blobs, _ := generate(1500, 3, threeBlobs)
 	five, _ := generate(800, 9, []blob{
 		{weight: 0.2, mean: []float64{0, 0, 0}, sd: []float64{1, 1, 1}, rho: 0.4},

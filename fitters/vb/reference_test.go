@@ -10,6 +10,8 @@ import (
 
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/mixture"
+
+	"github.com/mixd-dev/mixd/fitters/internal/testkit"
 )
 
 // reference is testdata/vb/reference.json, written by
@@ -72,7 +74,7 @@ func checkVec(t *testing.T, what string, got, want []float64, tol float64) {
 // compared: our bound minus its bound must be the same at every iteration.
 func TestFaithfulMatchesScikitLearn(t *testing.T) {
 	ref := loadReference(t)
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	const tol = 1e-8
 	for _, c := range ref.SklearnCases {
 		t.Run(c.Name, func(t *testing.T) {
@@ -139,7 +141,7 @@ func TestFaithfulMatchesScikitLearn(t *testing.T) {
 // default data-scaled priors.
 func TestBoundEqualsEvidenceForOneComponent(t *testing.T) {
 	ref := loadReference(t)
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	for _, s := range []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical} {
 		for _, wp := range []string{"dirichlet", "stick_breaking"} {
 			want, ok := ref.EvidenceK1[s.String()]

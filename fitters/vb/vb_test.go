@@ -12,6 +12,8 @@ import (
 
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/mixture"
+
+	"github.com/mixd-dev/mixd/fitters/internal/testkit"
 )
 
 func TestDescribe(t *testing.T) {
@@ -215,7 +217,7 @@ func TestCancellation(t *testing.T) {
 
 // TestReport checks the report fields and the served models.
 func TestReport(t *testing.T) {
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	for _, served := range []string{ServePredictive, ServePlugin} {
 		res, post, err := New().FitPosterior(context.Background(), data, fitters.Settings{Components: 6, Seed: 3,
 			Options: map[string]string{OptServedModel: served, OptConcentration: "0.001"}}, nil)
@@ -295,7 +297,7 @@ func TestDropsNegligibleComponents(t *testing.T) {
 // TestStartAndRange covers starting parameters, no iterations and the
 // choice of K over a range.
 func TestStartAndRange(t *testing.T) {
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	start := mixture.Params{Dim: 2, Family: mixture.Gaussian, Structure: mixture.Full, Components: []mixture.Component{
 		{Weight: 0.5, Mean: []float64{2, 55}, Cov: []float64{1.3, 13.9, 13.9, 184.8}},
 		{Weight: 0.5, Mean: []float64{4.5, 80}, Cov: []float64{1.3, 13.9, 13.9, 184.8}},
@@ -418,7 +420,7 @@ func FuzzData(f *testing.F) {
 // TestSettingsEchoRoundTrips: the option values echoed in Report.Settings
 // are accepted back as options and reproduce the fit bit for bit.
 func TestSettingsEchoRoundTrips(t *testing.T) {
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	s := fitters.Settings{Components: 3, Seed: 8, Restarts: 1, MaxIterations: 50}
 	a, err := New().Fit(context.Background(), data, s, nil)
 	if err != nil {
@@ -446,7 +448,7 @@ func TestSettingsEchoRoundTrips(t *testing.T) {
 
 // TestFamilyChoosesServedModel: a requested family picks the served model.
 func TestFamilyChoosesServedModel(t *testing.T) {
-	data := loadFaithful(t)
+	data := testkit.Faithful(t)
 	for _, c := range []struct {
 		family mixture.Family
 		st     mixture.Structure

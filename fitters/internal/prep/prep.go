@@ -109,13 +109,13 @@ func CheckWeights(w []float64, rows int, maxWeight float64) (Weights, error) {
 	return s, nil
 }
 
-// Relative returns w divided by its maximum max, so that no weighted sum
+// Relative returns w divided by its maximum wmax, so that no weighted sum
 // of the relative weights can overflow, with their sum and the number of
 // them that are positive (a tiny weight can underflow to zero here).
-func Relative(w []float64, max float64) (rel []float64, sum float64, positive int) {
+func Relative(w []float64, wmax float64) (rel []float64, sum float64, positive int) {
 	rel = make([]float64, len(w))
 	for i, v := range w {
-		rel[i] = v / max
+		rel[i] = v / wmax
 		sum += rel[i]
 		if rel[i] > 0 {
 			positive++

@@ -430,12 +430,12 @@ func Echo(family mixture.Family, b Basics, components int, seed uint64, ridge, s
 }
 
 // EchoRange adds to m, when r is a range to choose from, the criterion and
-// the range's bounds under the fitter's names minKey and maxKey.
-func EchoRange(m map[string]string, r Range, c fitters.Criterion, minKey, maxKey string) {
+// the range's bounds ("components_min", "components_max").
+func EchoRange(m map[string]string, r Range, c fitters.Criterion) {
 	if !r.Selecting {
 		return
 	}
 	m["criterion"] = c.String()
-	m[minKey] = strconv.Itoa(r.Min)
-	m[maxKey] = strconv.Itoa(r.Max)
+	m["components_min"] = strconv.Itoa(r.Min)
+	m["components_max"] = strconv.Itoa(r.Max)
 }

@@ -260,12 +260,12 @@ func TestEcho(t *testing.T) {
 	if !reflect.DeepEqual(m, want) {
 		t.Fatalf("echo %v", m)
 	}
-	EchoRange(m, Range{Min: 2, Max: 2}, b.Criterion, "lo", "hi")
+	EchoRange(m, Range{Min: 2, Max: 2}, b.Criterion)
 	if len(m) != len(want) {
 		t.Fatalf("a fixed K added %v", m)
 	}
-	EchoRange(m, Range{Min: 1, Max: 4, Selecting: true}, b.Criterion, "lo", "hi")
-	if m["criterion"] != "aic" || m["lo"] != "1" || m["hi"] != "4" {
+	EchoRange(m, Range{Min: 1, Max: 4, Selecting: true}, b.Criterion)
+	if m["criterion"] != "aic" || m["components_min"] != "1" || m["components_max"] != "4" {
 		t.Fatalf("range echo %v", m)
 	}
 	if got := (Range{Min: 1, Max: 4, Selecting: true}).Chosen(3, fitters.BIC); !reflect.DeepEqual(got, []string{"K=3 has the lowest BIC of K=1..4"}) {

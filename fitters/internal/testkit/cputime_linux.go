@@ -1,14 +1,16 @@
-package em
+//go:build linux
+
+package testkit
 
 import (
 	"syscall"
 	"time"
 )
 
-// processCPU returns the CPU time (user + system) used by this process so
+// ProcessCPU returns the CPU time (user + system) used by this process so
 // far. Benchmarks report it beside wall time because the machine is shared:
 // wall time then mostly measures the other tenants.
-func processCPU() time.Duration {
+func ProcessCPU() time.Duration {
 	var ru syscall.Rusage
 	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
 		return 0

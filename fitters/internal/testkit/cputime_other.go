@@ -1,0 +1,8 @@
+//go:build !linux
+
+package testkit
+
+import "time"
+
+// ProcessCPU is not measured on this platform: it returns 0.
+func ProcessCPU() time.Duration { return 0 }
