@@ -50,6 +50,7 @@ type config struct {
 	sharing      dfSharing
 	dfStart      float64
 	dfStartGiven bool
+	sharingGiven bool // dof_sharing was set by the caller
 	dfFloor      float64
 	dfCap        float64
 	outlierLevel float64
@@ -91,7 +92,25 @@ func resolve(_ fitters.Data, s fitters.Settings, p *problem) (*config, error) {
 	if cfg.k, cfg.start, err = m.Starts(s, &p.Rows, rules, &cfg.Basics); err != nil {
 		return nil, err
 	}
+	// A Student-t start whose components have different degrees of freedom
+	// keeps them apart unless the caller asked for a shared ν: averaging them
+	// would change the start before the first iteration (and a fit asked to
+	// evaluate the start without iterating would not return it).
+	if st := cfg.start.Params; st != nil && st.Family == mixture.StudentT && cfg.dfMode == dfEstimate &&
+		!cfg.sharingGiven && !cfg.dfStartGiven && !sameDF(st.Components) {
+		cfg.sharing = sharePerComponent
+	}
 	return cfg, nil
+}
+
+// sameDF reports whether all components have the same degrees of freedom.
+func sameDF(cs []mixture.Component) bool {
+	for _, c := range cs[1:] {
+		if c.DF != cs[0].DF {
+			return false
+		}
+	}
+	return true
 }
 
 // options parses the method-specific options, in name order so that the
@@ -129,6 +148,7 @@ func (cfg *config) options(opts map[string]string) error {
 			}
 		case optSharing:
 			estimateOnly = append(estimateOnly, name)
+			cfg.sharingGiven = true
 			switch val {
 			case valPerComp:
 				cfg.sharing = sharePerComponent

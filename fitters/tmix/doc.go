@@ -72,7 +72,8 @@
 //
 //	dof                "estimate" (default) or a positive number: ν fixed for every component
 //	dof_update         "ecme" (default) or "ecm"
-//	dof_sharing        "shared" (default): one ν for all components; "per_component"
+//	dof_sharing        "shared" (default; but "per_component" when a Student-t start
+//	                   has unequal ν and the option is not given): one ν for all components; "per_component"
 //	dof_start          10 (DefaultDFStart), or the start's values (see below)
 //	dof_floor          0.5 (DefaultDFFloor)
 //	dof_cap            200 (DefaultDFCap; at most MaxDFCap = 1e8)

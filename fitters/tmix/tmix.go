@@ -118,7 +118,7 @@ func (f *Fitter) Describe(ctx context.Context) (fitters.Info, error) {
 				Description: `how estimated degrees of freedom are updated: "ecme" maximises the observed-data ` +
 					`log-likelihood in ν by a bounded search on log ν; "ecm" solves the expected ` +
 					`complete-data equation by bisection (can crawl when ν is large)`},
-			{Name: optSharing, Default: valShared,
+			{Name: optSharing, Default: valShared + " (" + valPerComp + " for a Student-t start with unequal ν)",
 				Description: `"shared": one ν for all components; "per_component": each component has its own ν ` +
 					`(a component that absorbs gross errors may then lower its own ν so far that the outlier rule stops flagging them)`},
 			{Name: optDFStart, Default: fmtFloat(DefaultDFStart) + " (or the start's values)",

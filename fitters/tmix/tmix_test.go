@@ -444,9 +444,21 @@ func TestZeroIterations(t *testing.T) {
 	if res.Report.Iterations != 0 || len(res.Report.History) != 1 || res.Report.LogLikelihood != ll {
 		t.Fatalf("iterations %d history %v log-likelihood %v (model %v)", res.Report.Iterations, res.Report.History, res.Report.LogLikelihood, ll)
 	}
-	// With one shared ν (the default) the start's values are averaged with
-	// the component weights: 0.3·3 + 0.45·5 + 0.25·8 = 5.15.
+	// Without dof_sharing, a start whose components differ in ν keeps them
+	// apart, so the start comes back unchanged.
 	res, err = New().Fit(context.Background(), data, fitters.Settings{Start: &start, MaxIterations: NoIterations}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(res.Params, start) {
+		t.Fatalf("default sharing changed the start:\n got %+v\nwant %+v", res.Params, start)
+	}
+	if got := res.Report.Settings[optSharing]; got != valPerComp {
+		t.Errorf("settings echo %s = %q, want %q", optSharing, got, valPerComp)
+	}
+	// With one shared ν asked for, the start's values are averaged with the
+	// component weights: 0.3·3 + 0.45·5 + 0.25·8 = 5.15.
+	res, err = New().Fit(context.Background(), data, fitters.Settings{Start: &start, MaxIterations: NoIterations, Options: map[string]string{optSharing: valShared}}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
