@@ -50,4 +50,17 @@
 //
 // See errors.go for the table of gRPC codes. A rejected request changes
 // nothing stored.
+//
+// # Around the API
+//
+// Run adds, each off unless configured: TLS and mutual TLS from files
+// (tlsconfig.go), bearer tokens of class read or full (auth.go), a request
+// id and call log for every call and a default deadline for unary calls
+// (interceptors.go), Prometheus metrics on a separate listener
+// (metrics.go), a health-only listener for probes, and OpenTelemetry spans
+// written to a file (tracing.go); serving.go puts them together. SIGHUP
+// (Config.Reload) rereads the TLS files and the token file. The fit queue
+// (jobstats.go) refuses a job beyond Limits.MaxActiveJobs with a retry
+// hint, and a fit whose estimated memory (EstimateFitBytes) exceeds
+// Limits.MaxFitMemory is refused as its rows arrive.
 package daemon

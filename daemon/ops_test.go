@@ -4,6 +4,8 @@ import (
 	"context"
 	"io"
 	"net/http"
+	"os"
+	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
@@ -12,6 +14,7 @@ import (
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/credentials/insecure"
+	"google.golang.org/grpc/metadata"
 	"google.golang.org/grpc/status"
 
 	mixdv1 "github.com/mixd-dev/mixd/proto/mixd/v1"
@@ -179,5 +182,26 @@ func TestFitMemoryCap(t *testing.T) {
 	}
 	if s := formatBytes(3 << 29); s != "1.5 GiB" {
 		t.Fatalf("formatBytes = %q", s)
+	}
+}
+
+func TestTraceFile(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "spans.json")
+	t.Run("serve", func(t *testing.T) {
+		lines, _ := runWith(t, Config{TraceFile: path})
+		c := mixdv1.NewMixtureServiceClient(dialWith(t, lines[ListeningPrefix], grpc.WithTransportCredentials(insecure.NewCredentials())))
+		// A caller's W3C trace context is continued.
+		ctx := metadata.AppendToOutgoingContext(context.Background(), "traceparent", "00-4bf92f3577b34da6a3ce929d0e0e4736-00f067aa0ba902b7-01")
+		if _, err := c.ListModels(ctx, &mixdv1.ListModelsRequest{}); err != nil {
+			t.Fatal(err)
+		}
+	}) // Run has returned: the spans are flushed.
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := string(b)
+	if !strings.Contains(s, `"Name":"mixd.v1.MixtureService/ListModels"`) || !strings.Contains(s, "4bf92f3577b34da6a3ce929d0e0e4736") {
+		t.Fatalf("trace file lacks the call's span in the caller's trace:\n%.2000s", s)
 	}
 }
