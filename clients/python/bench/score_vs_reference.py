@@ -17,10 +17,15 @@ document; the rows are drawn around its means. Both sides are timed on the
 same rows in the same run, each `--repeats` times, and the best and median
 are reported as rows per second. The client's time includes converting the
 rows to bytes, the transfer over loopback (chunked, streamed), the daemon's
-computation and the conversion back to numpy. scikit-learn's time is
-GaussianMixture.score_samples on parameters set directly (no fit). Results
-of the two are compared as a sanity check. scikit-learn's own parameter and
-method names appear here only in that reference computation.
+computation and the conversion back to numpy. scikit-learn's time is its
+Gaussian mixture evaluating the per-row log-densities on the same
+parameters set directly (no fit). Results of the two are compared as a
+sanity check.
+
+The scikit-learn side is the test suite's reference function
+``gaussian_mixture_log_density`` in ``clients/python/tests/sklearn_reference.py``:
+this script adds that directory to ``sys.path`` to import it, so that
+scikit-learn's own names live only in the tests' reference code.
 
 Numbers on a shared machine measure the other tenants too: report them with
 the machine's load (printed at the start).
@@ -39,6 +44,10 @@ import time
 from typing import Callable, List, Optional, Tuple
 
 import numpy as np
+
+# The reference computation is shared with the test suite: import it from
+# clients/python/tests (see the module docstring).
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), os.pardir, "tests"))
 
 
 def parameters(k: int, d: int, seed: int) -> Tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -112,7 +121,7 @@ def main(argv: Optional[List[str]] = None) -> int:
 
     import mixd
     import sklearn
-    from sklearn.mixture import GaussianMixture
+    from sklearn_reference import gaussian_mixture_log_density
 
     n, k, d = args.rows, args.components, args.dimension
     w, mu, cov = parameters(k, d, args.seed)
@@ -140,15 +149,11 @@ def main(argv: Optional[List[str]] = None) -> int:
             t_client, res = timed(lambda: c.score(m, x), args.repeats)
         ld_client = res.log_density  # type: ignore[attr-defined]
 
-        # Reference: scikit-learn's GaussianMixture with the same parameters
-        # set directly (its documented fitted attributes), no fit.
-        gm = GaussianMixture(n_components=k, covariance_type="full")
-        gm.weights_ = w
-        gm.means_ = mu
-        gm.covariances_ = cov
-        gm.precisions_cholesky_ = np.stack([np.linalg.inv(np.linalg.cholesky(c_)).T for c_ in cov])
-        gm.score_samples(x[:1000])
-        t_ref, ld_ref = timed(lambda: gm.score_samples(x), args.repeats)
+        # Reference: scikit-learn's Gaussian mixture with the same parameters
+        # set directly, no fit (tests/sklearn_reference.py).
+        reference = gaussian_mixture_log_density(w, mu, cov)
+        reference(x[:1000])
+        t_ref, ld_ref = timed(lambda: reference(x), args.repeats)
     finally:
         if proc is not None:
             proc.terminate()

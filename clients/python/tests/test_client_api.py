@@ -73,6 +73,21 @@ def test_fit_with_progress_and_dataframe(client: mixd.Client) -> None:
     np.testing.assert_array_equal(again.covariances, m.covariances)
 
 
+def test_fit_over_a_range_of_components(client: mixd.Client) -> None:
+    """components_min / components_max fit every K in the range and keep
+    the one of lowest BIC; the report's table lists each K once."""
+    x = pumps(1500, 4)
+    m = client.fit("pumps-range", x, components_min=1, components_max=3, criterion="bic", seed=2)
+    r = m.report
+    assert r is not None and [s.components for s in r.selection] == [1, 2, 3]
+    # BIC = -2 log L + p ln n, lower is better (its definition); the kept
+    # K is the table's minimum and its log-likelihood the report's.
+    best = min(r.selection, key=lambda s: s.bic)
+    assert m.components == best.components
+    ld, _, _ = mixture_reference(x, m.weights, m.means, m.covariances)
+    assert abs(best.log_likelihood - ld.sum()) <= 1e-9 * abs(ld.sum())
+
+
 def test_fit_cancelled_by_event(client: mixd.Client) -> None:
     cancel = threading.Event()
     seen: List[mixd.FitProgress] = []

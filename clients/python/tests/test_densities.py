@@ -122,3 +122,18 @@ def test_fit_without_iterations_evaluates_start(client: mixd.Client) -> None:
         assert_close(s.percentile[inside], want[inside], 1e-9, f"{structure}: percentiles", scale=100.0)
         assert (s.percentile[yld < q[0]] == 0).all()
         assert (s.percentile[yld > q[-1]] == 100).all()
+
+
+def test_score_matches_scikit_learn(client: mixd.Client) -> None:
+    """The benchmark's reference (tests/sklearn_reference.py) agrees with the
+    daemon on the benchmark's kind of model: full covariances, K = 8, D = 8."""
+    from sklearn_reference import gaussian_mixture_log_density
+
+    rng = np.random.default_rng(20261202)
+    w, mu, cov = random_parameters(rng, 8, 8, "full")
+    m = client.import_model(model_document("ref-sklearn", w, mu, cov))
+    x = _rows(rng, mu, 2000)
+    # Source: scikit-learn's GaussianMixture (reference library) with the
+    # parameters set directly.
+    want = gaussian_mixture_log_density(w, mu, cov)(x)
+    assert_close(client.score(m, x).log_density, want, TOL, "log-density vs scikit-learn")

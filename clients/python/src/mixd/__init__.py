@@ -1,7 +1,9 @@
 """mixd: the Python client of the mixd mixture-model daemon.
 
-Fit Gaussian and Student-t mixture models, and score, classify and sample
-rows with them, over gRPC with numpy arrays in and out::
+Fit Gaussian and Student-t mixture models; score, classify and sample rows
+with them (also rows with unobserved features, given by an explicit mask);
+predict unobserved features from observed ones; and compare two models for
+drift, over gRPC with numpy arrays in and out::
 
     import numpy as np, mixd
     x = np.loadtxt("testdata/pumps/stations.csv", delimiter=",", skiprows=1)
@@ -12,8 +14,10 @@ rows with them, over gRPC with numpy arrays in and out::
 Public names: :class:`Client`; the result and parameter dataclasses
 (:class:`Model`, :class:`Parameters`, :class:`FitReport`,
 :class:`ScoreResult`, :class:`ClassifyResult`, :class:`SampleResult`,
-:class:`FitJob`, :class:`FitProgress`, :class:`FitterInfo`); the exception
-hierarchy rooted at :class:`MixdError`.
+:class:`PredictResult`, :class:`CompareResult`, :class:`ComponentMatch`,
+:class:`FitJob`, :class:`FitProgress`, :class:`FitterInfo`);
+:func:`mask_from_nan`, which turns NaN-marked missing values into values and
+an explicit mask; the exception hierarchy rooted at :class:`MixdError`.
 """
 
 from .client import (
@@ -25,6 +29,7 @@ from .client import (
     JobRef,
     ModelRef,
 )
+from ._matrix import mask_from_nan
 from .errors import (
     AlreadyExists,
     Cancelled,
@@ -49,6 +54,8 @@ from .types import (
     JOB_STATES,
     STRUCTURES,
     ClassifyResult,
+    CompareResult,
+    ComponentMatch,
     FitJob,
     FitProgress,
     FitReport,
@@ -56,6 +63,7 @@ from .types import (
     FitterOption,
     Model,
     Parameters,
+    PredictResult,
     SampleResult,
     ScoreResult,
     SelectionRow,
@@ -103,5 +111,9 @@ __all__ = [
     "ScoreResult",
     "ClassifyResult",
     "SampleResult",
+    "PredictResult",
+    "CompareResult",
+    "ComponentMatch",
+    "mask_from_nan",
     "__version__",
 ]

@@ -50,6 +50,75 @@ def as_rows(x: Any, what: str = "rows") -> Tuple[np.ndarray, Optional[List[str]]
     return a, names
 
 
+def as_mask(observed: Any, shape: Tuple[int, int], what: str = "observed") -> np.ndarray:
+    """Returns an observation mask as a C-contiguous (N, D) uint8 array of
+    1 (observed) and 0 (unobserved), ready to be sent as observed_mask bytes.
+
+    ``observed`` must have the shape of the rows and hold booleans (a numpy
+    bool array, nested lists of bools, a DataFrame of bools such as
+    ``df.notna()``), or integers that are all 0 or 1. Anything else raises
+    InvalidArgument naming the problem.
+    """
+    if _is_dataframe(observed):
+        observed = observed.to_numpy()
+    a = np.asarray(observed)
+    if a.shape != tuple(shape):
+        raise _invalid(
+            f"{what} has shape {a.shape}; want one flag per value, the shape of the rows {tuple(shape)}"
+        )
+    if a.dtype == np.bool_:
+        return np.ascontiguousarray(a, dtype=np.uint8)
+    if a.size and np.issubdtype(a.dtype, np.integer):
+        bad = (a != 0) & (a != 1)
+        if bad.any():
+            r, c = (int(v) for v in np.argwhere(bad)[0])
+            raise _invalid(f"{what}: flag at row {r}, column {c} is {a[r, c].item()!r}; want True/1 (observed) or False/0 (unobserved)")
+        return np.ascontiguousarray(a, dtype=np.uint8)
+    if a.size == 0:
+        return np.zeros(shape, dtype=np.uint8)
+    raise _invalid(f"{what} must hold booleans (True = observed), not {a.dtype}")
+
+
+def mask_from_nan(rows: Any) -> Tuple[np.ndarray, np.ndarray]:
+    """Turns NaN-marked missing values into the explicit form the daemon takes.
+
+    NaN is never a missing-value marker for mixd: rows holding NaN are
+    refused. Data that marks missing values with NaN (a pandas DataFrame
+    read from a CSV with empty cells, say) is converted here, explicitly::
+
+        values, observed = mixd.mask_from_nan(df)
+        client.score(model, values, observed=observed)
+
+    Args:
+        rows: An (N, D) array-like or a pandas DataFrame (columns in order;
+            pandas' missing-value markers become NaN).
+
+    Returns:
+        ``(values, observed)``: a float64 (N, D) copy of the rows with every
+        NaN replaced by 0, and a bool (N, D) array that is False exactly
+        where the input was NaN. Infinite values are left as they are (and
+        are then refused by the calls, naming the row and column): only NaN
+        means "not observed" here.
+
+    Raises:
+        InvalidArgument: the input is not 2-D or not numeric.
+    """
+    if _is_dataframe(rows):
+        try:
+            rows = rows.to_numpy(dtype=np.float64, na_value=np.nan)
+        except (TypeError, ValueError) as e:
+            raise _invalid(f"rows: the DataFrame's columns must all be numeric: {e}") from None
+    try:
+        a = np.array(rows, dtype=_F8, order="C", copy=True)
+    except (TypeError, ValueError) as e:
+        raise _invalid(f"rows: cannot be read as float64 numbers: {e}") from None
+    if a.ndim != 2:
+        raise _invalid(f"rows has shape {a.shape}; want a 2-D array of rows x features")
+    missing = np.isnan(a)
+    a[missing] = 0.0
+    return a, ~missing
+
+
 def encode(a: np.ndarray) -> pb.Matrix:
     """Encodes a C-contiguous little-endian float64 (N, D) array."""
     return pb.Matrix(rows=a.shape[0], cols=a.shape[1], little_endian=a.tobytes())

@@ -31,11 +31,13 @@ from .types import (
     _FAMILY_TO_PB,
     _STRUCTURE_TO_PB,
     ClassifyResult,
+    CompareResult,
     FitJob,
     FitProgress,
     FitterInfo,
     Model,
     Parameters,
+    PredictResult,
     SampleResult,
     ScoreResult,
     _choice,
@@ -87,6 +89,20 @@ def _model_ref(model: ModelRef, version: Optional[int]) -> Tuple[str, int]:
     if not isinstance(model, str) or not model:
         raise _invalid(f"model must be a non-empty model id or a Model, not {model!r}")
     return model, int(version or 0)
+
+
+def _mask_bytes(mask: Optional[np.ndarray], lo: int, hi: int) -> bytes:
+    """The observed_mask bytes of rows [lo, hi); empty (all observed) without a mask."""
+    if mask is None:
+        return b""
+    return mask[lo:hi].tobytes()
+
+
+def _seed(seed: int) -> int:
+    seed = int(seed)
+    if not 0 <= seed < 1 << 64:
+        raise _invalid(f"seed is {seed}; want an unsigned 64-bit integer")
+    return seed
 
 
 def _job_name(job: JobRef) -> str:
@@ -266,6 +282,7 @@ class Client:
         version: Optional[int] = None,
         component_log_densities: bool = False,
         outlier_level: float = 0.0,
+        observed: Any = None,
         timeout: Optional[float] = None,
     ) -> ScoreResult:
         """Scores rows under a model: log-density, training percentile and,
@@ -281,53 +298,76 @@ class Client:
                 log-density (without its weight), shape (N, K).
             outlier_level: Student-t models: tail probability level of the
                 outlier rule; 0 means the level stored with the model.
+            observed: Which values are observed: a bool array of the rows'
+                shape (N, D), True = observed; None means all. Rows are then
+                scored under the marginal mixture of their observed features
+                (exact for Gaussian and Student-t components), and rows with
+                an unobserved feature get a NaN percentile. Values at
+                unobserved positions are ignored but must still be finite
+                (put 0 there; :func:`mixd.mask_from_nan` converts NaN-marked
+                data).
             timeout: Deadline in seconds (default: the client's for a single
                 message; none for a streamed batch).
 
         Batches larger than one message are streamed in chunks over
-        ScoreStream; the result is the same as one call would give, all
-        chunks scored by the same model version.
+        ScoreStream (each chunk with its slice of the mask); the result is
+        the same as one call would give, all chunks scored by the same model
+        version.
 
         Raises:
             InvalidArgument: rows are not 2-D, hold a non-finite value, or
-                have a column count other than the model's dimension.
+                have a column count other than the model's dimension; the
+                mask has another shape than the rows or holds non-booleans.
             NotFound: the model or version does not exist.
         """
         name, ver = _model_ref(model, version)
         x, _ = _matrix.as_rows(rows)
         n, d = x.shape
+        mask = None if observed is None else _matrix.as_mask(observed, (n, d))
+        # Request bytes per row: the values and, with a mask, one byte each.
+        width = 8 * d + (d if mask is not None else 0)
         out = _ScoreAssembler(n)
         done = 0
         k: Optional[int] = None
-        if component_log_densities and n > self._rows_per_chunk(8 * max(d, 3 + 256)):
+        if component_log_densities and n > self._rows_per_chunk(max(width, 8 * (3 + 256))):
             # Learn K (and pin the version) with a small unary call before
             # choosing the chunk size of the stream.
             m = min(n, _PROBE_ROWS)
-            resp = self._score_unary(name, ver, x[:m], True, outlier_level, timeout)
+            resp = self._score_unary(name, ver, x, mask, 0, m, True, outlier_level, timeout)
             out.add(resp, 0)
             name, ver, done = resp.model, resp.version, m
             k = int(resp.component_log_densities.cols)
         # Response columns per row: log-density, percentile, outlier
         # statistic and flag, plus the component log-densities.
         cols = 3 + (k if k is not None else (256 if component_log_densities else 0))
-        per = self._rows_per_chunk(8 * max(d, cols))
+        per = self._rows_per_chunk(max(width, 8 * cols))
         if n - done <= per:
-            resp = self._score_unary(name, ver, x[done:], component_log_densities, outlier_level, timeout)
+            resp = self._score_unary(name, ver, x, mask, done, n, component_log_densities, outlier_level, timeout)
             out.add(resp, done)
         else:
-            self._score_stream(name, ver, x, done, per, component_log_densities, outlier_level, timeout, out)
+            self._score_stream(name, ver, x, mask, done, per, component_log_densities, outlier_level, timeout, out)
         return out.result()
 
     def _score_unary(
-        self, name: str, ver: int, x: np.ndarray, comps: bool, level: float, timeout: Optional[float]
+        self,
+        name: str,
+        ver: int,
+        x: np.ndarray,
+        mask: Optional[np.ndarray],
+        lo: int,
+        hi: int,
+        comps: bool,
+        level: float,
+        timeout: Optional[float],
     ) -> svc.ScoreResponse:
         req = svc.ScoreRequest(
             model=name,
             version=ver,
-            rows=_matrix.encode(x),
+            rows=_matrix.encode(x[lo:hi]),
             include_component_log_densities=comps,
             response_encoding=_LE,
             outlier_level=level,
+            observed_mask=_mask_bytes(mask, lo, hi),
         )
         return self._unary(self._stub.Score, req, timeout)
 
@@ -336,6 +376,7 @@ class Client:
         name: str,
         ver: int,
         x: np.ndarray,
+        mask: Optional[np.ndarray],
         start: int,
         per: int,
         comps: bool,
@@ -347,6 +388,8 @@ class Client:
             first = True
             for lo in range(start, x.shape[0], per):
                 m = _matrix.encode(x[lo : lo + per])
+                # The mask is read from every message: each chunk carries its slice.
+                om = _mask_bytes(mask, lo, lo + per)
                 if first:
                     first = False
                     yield svc.ScoreStreamRequest(
@@ -356,9 +399,10 @@ class Client:
                         include_component_log_densities=comps,
                         response_encoding=_LE,
                         outlier_level=level,
+                        observed_mask=om,
                     )
                 else:
-                    yield svc.ScoreStreamRequest(rows=m)
+                    yield svc.ScoreStreamRequest(rows=m, observed_mask=om)
 
         call = self._stub.ScoreStream(requests(), timeout=self._deadline(timeout, True), metadata=self._metadata)
         self._drain(call, out, start)
@@ -388,6 +432,7 @@ class Client:
         version: Optional[int] = None,
         min_posterior: float = 0.0,
         posteriors: bool = False,
+        observed: Any = None,
         timeout: Optional[float] = None,
     ) -> ClassifyResult:
         """Assigns rows to their most probable component.
@@ -399,6 +444,8 @@ class Client:
             min_posterior: Rows whose largest posterior is below this are
                 marked not confident; 0 disables the check.
             posteriors: Also return all posterior probabilities, (N, K).
+            observed: Which values are observed, as for :meth:`score`; the
+                posteriors are then those given the observed features only.
             timeout: Deadline in seconds, as for :meth:`score`.
 
         Large batches are streamed over ClassifyStream as for :meth:`score`.
@@ -411,19 +458,21 @@ class Client:
         name, ver = _model_ref(model, version)
         x, _ = _matrix.as_rows(rows)
         n, d = x.shape
+        mask = None if observed is None else _matrix.as_mask(observed, (n, d))
+        width = 8 * d + (d if mask is not None else 0)
         out = _ClassifyAssembler(n, min_posterior)
         done = 0
         k: Optional[int] = None
-        if posteriors and n > self._rows_per_chunk(8 * max(d, 2 + 256)):
+        if posteriors and n > self._rows_per_chunk(max(width, 8 * (2 + 256))):
             m = min(n, _PROBE_ROWS)
-            resp = self._classify_unary(name, ver, x[:m], min_posterior, True, timeout)
+            resp = self._classify_unary(name, ver, x, mask, 0, m, min_posterior, True, timeout)
             out.add(resp, 0)
             name, ver, done = resp.model, resp.version, m
             k = int(resp.posteriors.cols)
         cols = 2 + (k if k is not None else (256 if posteriors else 0))
-        per = self._rows_per_chunk(8 * max(d, cols))
+        per = self._rows_per_chunk(max(width, 8 * cols))
         if n - done <= per:
-            resp = self._classify_unary(name, ver, x[done:], min_posterior, posteriors, timeout)
+            resp = self._classify_unary(name, ver, x, mask, done, n, min_posterior, posteriors, timeout)
             out.add(resp, done)
         else:
 
@@ -431,6 +480,7 @@ class Client:
                 first = True
                 for lo in range(done, n, per):
                     m = _matrix.encode(x[lo : lo + per])
+                    om = _mask_bytes(mask, lo, lo + per)
                     if first:
                         first = False
                         yield svc.ClassifyStreamRequest(
@@ -440,9 +490,10 @@ class Client:
                             min_posterior=min_posterior,
                             include_posteriors=posteriors,
                             response_encoding=_LE,
+                            observed_mask=om,
                         )
                     else:
-                        yield svc.ClassifyStreamRequest(rows=m)
+                        yield svc.ClassifyStreamRequest(rows=m, observed_mask=om)
 
             call = self._stub.ClassifyStream(
                 requests(), timeout=self._deadline(timeout, True), metadata=self._metadata
@@ -451,15 +502,25 @@ class Client:
         return out.result()
 
     def _classify_unary(
-        self, name: str, ver: int, x: np.ndarray, min_post: float, post: bool, timeout: Optional[float]
+        self,
+        name: str,
+        ver: int,
+        x: np.ndarray,
+        mask: Optional[np.ndarray],
+        lo: int,
+        hi: int,
+        min_post: float,
+        post: bool,
+        timeout: Optional[float],
     ) -> svc.ClassifyResponse:
         req = svc.ClassifyRequest(
             model=name,
             version=ver,
-            rows=_matrix.encode(x),
+            rows=_matrix.encode(x[lo:hi]),
             min_posterior=min_post,
             include_posteriors=post,
             response_encoding=_LE,
+            observed_mask=_mask_bytes(mask, lo, hi),
         )
         return self._unary(self._stub.Classify, req, timeout)
 
@@ -497,9 +558,7 @@ class Client:
         count = int(count)
         if count < 0:
             raise _invalid(f"count is {count}, must not be negative")
-        seed = int(seed)
-        if not 0 <= seed < 1 << 64:
-            raise _invalid(f"seed is {seed}; want an unsigned 64-bit integer")
+        seed = _seed(seed)
         if count <= _UNARY_SAMPLE_ROWS:
             resp = self._unary(
                 self._stub.Sample,
@@ -535,6 +594,201 @@ class Client:
         if rows_out is None or offset != count:
             raise error_for_code(grpc.StatusCode.INTERNAL, f"the daemon sent {offset} of {count} rows")
         return SampleResult(got_name, got_ver, rows_out, comp)
+
+    # ---------------------------------------------------------------- predict
+
+    def predict(
+        self,
+        model: ModelRef,
+        rows: Any,
+        observed: Any,
+        *,
+        std: bool = False,
+        covariances: bool = False,
+        components: bool = False,
+        component_scales: bool = False,
+        draws: int = 0,
+        seed: int = 0,
+        version: Optional[int] = None,
+        timeout: Optional[float] = None,
+    ) -> PredictResult:
+        """Predicts each row's unobserved features from its observed ones:
+        the conditional distribution of the unobserved features under the
+        model (conditional prediction), optionally with seeded draws from it
+        (multiple imputation).
+
+        Args:
+            model: Model id, "models/{id}", or a Model.
+            rows: An (N, D) array (or DataFrame), as for :meth:`score`;
+                values at unobserved positions are ignored but must be
+                finite (put 0 there; see :func:`mixd.mask_from_nan`).
+            observed: Bool array of the rows' shape, True = observed; the
+                False positions are predicted. None means every value is
+                observed (nothing to predict; the rows come back as means).
+            std: Also return the conditional standard deviations (N, D).
+            covariances: Also return the conditional covariance matrices
+                (N, D, D).
+            components: Also return the conditional component weights
+                (posteriors, (N, K)), the components' conditional means
+                (N, K, D) and, for Student-t models, their degrees of
+                freedom (N, K).
+            component_scales: Also return the components' conditional
+                covariance (Gaussian) or scale (Student-t) matrices
+                (N, K, D, D).
+            draws: Completed rows to draw per row from its conditional
+                distribution, (N, draws, D); 0 draws none.
+            seed: Seed of the draws (unsigned 64-bit). Row i's draws depend
+                only on the model version, the seed and i.
+            version: Model version; None or 0 means the newest (or the
+                Model's own version when a Model is given).
+            timeout: Deadline in seconds of each request (default: the
+                client's).
+
+        The model version is resolved once (GetModel) and large batches are
+        split into several Predict requests, sized by the width of the
+        response (each request passes the index of its first row, so the
+        draws equal those of one request).
+
+        Raises:
+            InvalidArgument: bad rows or mask (see :meth:`score`), negative
+                draws or a seed outside 0 .. 2**64-1.
+            NotFound: the model or version does not exist.
+            FailedPrecondition: a conditional mean or covariance asked for
+                does not exist (a Student-t component with too few degrees
+                of freedom).
+            ResourceExhausted: rows x draws above the daemon's limit.
+        """
+        name, ver = _model_ref(model, version)
+        x, _ = _matrix.as_rows(rows)
+        n, d = x.shape
+        mask = None if observed is None else _matrix.as_mask(observed, (n, d))
+        draws = int(draws)
+        if draws < 0:
+            raise _invalid(f"draws is {draws}, must not be negative")
+        seed = _seed(seed)
+        # Resolve the version once, so every request uses the same one, and
+        # learn K to size the requests by their responses.
+        m = self.get_model(name, version=ver, timeout=timeout)
+        name, ver, k = m.name, m.version, m.components
+        robust = m.family == "student_t"
+        per = d + 1 + draws * d  # means, log-density, draws
+        if std:
+            per += d
+        if covariances:
+            per += d * d
+        if components:
+            per += 2 * k + k * d
+        if component_scales:
+            per += k * d * d
+        step = self._rows_per_chunk(max(8 * per, 8 * d + (d if mask is not None else 0)))
+
+        out = PredictResult(
+            model=name,
+            version=ver,
+            means=np.empty((n, d)),
+            log_density=np.empty(n),
+            std=np.empty((n, d)) if std else None,
+            covariances=np.empty((n, d, d)) if covariances else None,
+            posteriors=np.empty((n, k)) if components else None,
+            component_means=np.empty((n, k, d)) if components else None,
+            degrees_of_freedom=np.empty((n, k)) if components and robust else None,
+            component_scales=np.empty((n, k, d, d)) if component_scales else None,
+            draws=np.empty((n, draws, d)) if draws > 0 else None,
+        )
+        for lo in range(0, max(n, 1), step):
+            hi = min(n, lo + step)
+            req = svc.PredictRequest(
+                model=name,
+                version=ver,
+                rows=_matrix.encode(x[lo:hi]),
+                observed_mask=_mask_bytes(mask, lo, hi),
+                include_standard_deviations=std,
+                include_covariances=covariances,
+                include_components=components,
+                include_component_scales=component_scales,
+                draws=draws,
+                seed=seed,
+                first_row=lo,
+                response_encoding=_LE,
+            )
+            resp = self._unary(self._stub.Predict, req, timeout)
+            if resp.version != ver:
+                raise error_for_code(
+                    grpc.StatusCode.INTERNAL, f"the daemon answered with version {resp.version}, asked for {ver}"
+                )
+            sl = slice(lo, hi)
+            _matrix.decode_into(resp.means, out.means[sl], "means")
+            _matrix.decode_into(resp.log_densities, out.log_density[sl], "log_densities")
+            for want, msg, field in (
+                (out.std, resp.standard_deviations, "standard_deviations"),
+                (out.covariances, resp.covariances, "covariances"),
+                (out.posteriors, resp.posteriors, "posteriors"),
+                (out.component_means, resp.component_means, "component_means"),
+                (out.degrees_of_freedom, resp.component_degrees_of_freedom, "component_degrees_of_freedom"),
+                (out.component_scales, resp.component_scales, "component_scales"),
+                (out.draws, resp.draws, "draws"),
+            ):
+                if want is not None:
+                    _matrix.decode_into(msg, want[sl], field)
+        return out
+
+    # ---------------------------------------------------------------- compare
+
+    def compare_models(
+        self,
+        model: ModelRef,
+        other_model: ModelRef = "",
+        *,
+        version: Optional[int] = None,
+        other_version: Optional[int] = None,
+        samples: int = 0,
+        seed: int = 0,
+        timeout: Optional[float] = None,
+    ) -> CompareResult:
+        """Compares two models, or two versions of one model, over the same
+        features: Monte Carlo estimates of the Kullback-Leibler divergence in
+        both directions with standard errors, and a matching of their
+        components by Bhattacharyya distance (for drift checks).
+
+        Read :class:`~mixd.types.CompareResult` for what the numbers do and
+        do not mean.
+
+        Args:
+            model: The first model, p: id, "models/{id}" or a Model.
+            other_model: The second model, q; "" means the same model as
+                ``model`` (to compare two of its versions).
+            version: Version of p; None or 0 means the newest (or the
+                Model's own version).
+            other_version: Version of q, likewise.
+            samples: Draws per direction (at least 2); 0 lets the daemon
+                choose (20000).
+            seed: Seed of the draws: the same versions, samples and seed
+                give the same result.
+            timeout: Deadline in seconds (default: the client's).
+
+        Raises:
+            InvalidArgument: the models have different dimensions or feature
+                names, or samples is 1 or negative.
+            NotFound: a model or version does not exist.
+            ResourceExhausted: samples above the daemon's limit.
+        """
+        name, ver = _model_ref(model, version)
+        if isinstance(other_model, str) and other_model == "":
+            other_name, other_ver = "", int(other_version or 0)
+        else:
+            other_name, other_ver = _model_ref(other_model, other_version)
+        samples = int(samples)
+        if samples < 0:
+            raise _invalid(f"samples is {samples}, must not be negative (0 lets the daemon choose)")
+        req = svc.CompareModelsRequest(
+            model=name,
+            version=ver,
+            other_model=other_name,
+            other_version=other_ver,
+            samples=samples,
+            seed=_seed(seed),
+        )
+        return CompareResult.from_proto(self._unary(self._stub.CompareModels, req, timeout))
 
     # -------------------------------------------------------------------- fit
 

@@ -33,6 +33,9 @@ __all__ = [
     "ScoreResult",
     "ClassifyResult",
     "SampleResult",
+    "PredictResult",
+    "ComponentMatch",
+    "CompareResult",
 ]
 
 #: Component families, as accepted and returned by the client.
@@ -498,6 +501,10 @@ class FitterInfo:
 class ScoreResult:
     """Scores of N rows under one model version.
 
+    Rows scored with an ``observed`` mask get the log-density of their
+    observed features under the marginal mixture (exact for Gaussian and
+    Student-t components); a row with nothing observed gets 0.
+
     Attributes:
         model: Resource name of the model that scored.
         version: Its version.
@@ -505,7 +512,9 @@ class ScoreResult:
         percentile: Percentile in [0, 100] of each row's log-density among
             the training rows' log-densities, shape (N,); None for a model
             without training quantiles (an imported model without a fit
-            report). A low percentile says only that the model finds the row
+            report). NaN for rows scored with an unobserved feature: a
+            marginal log-density is not comparable with the training rows'
+            full ones. A low percentile says only that the model finds the row
             rare compared with its training data; it is not by itself a
             judgement that the equipment behind the row is faulty.
         component_log_density: Log-density of each row under each component
@@ -532,6 +541,9 @@ class ScoreResult:
 @dataclass
 class ClassifyResult:
     """Component assignments of N rows.
+
+    Rows classified with an ``observed`` mask get the posteriors given their
+    observed features only.
 
     Attributes:
         model: Resource name of the model that classified.
@@ -569,3 +581,164 @@ class SampleResult:
     rows: np.ndarray
     component: np.ndarray
 
+
+
+@dataclass
+class PredictResult:
+    """The conditional distribution of each row's unobserved features given
+    its observed ones, for N rows of D features under a model of K
+    components.
+
+    The conditional distribution of a mixture is again a mixture: its
+    weights are the components' posteriors given the observed features, its
+    components are the components' conditionals (Gaussian: the Schur
+    complement formulas; Student-t: Student-t with nu + (observed count)
+    degrees of freedom).
+
+    What it means and does not mean: ``means`` is the model's expected value
+    of the missing readings given the observed ones, and ``std`` /
+    ``covariances`` its uncertainty *under the model*. It is an estimate,
+    not a measurement: when the observed values are unusual for the model
+    (look at ``log_density``) or the model is wrong, the prediction can be
+    far off while its spread looks small. A predicted value must not stand
+    in for a measurement in decisions about the safety of equipment; those
+    belong to the operator's own procedures.
+
+    Attributes:
+        model: Resource name of the model used.
+        version: Its version (the same for every chunk of a large batch).
+        means: Each row with its unobserved features replaced by their
+            conditional mean, shape (N, D); observed values are copied.
+        log_density: Log-density of each row's observed features under the
+            marginal mixture, shape (N,) (0 for a row with nothing observed).
+        std: Conditional standard deviations, shape (N, D), 0 for observed
+            features; None unless asked for.
+        covariances: Conditional covariance matrices (law of total
+            covariance over the components), shape (N, D, D), zero rows and
+            columns for observed features; None unless asked for.
+        posteriors: Conditional component weights, shape (N, K); None unless
+            ``components`` was asked for.
+        component_means: Each component's conditional mean with observed
+            values copied, shape (N, K, D); None unless ``components``.
+        degrees_of_freedom: Student-t models: each component's conditional
+            degrees of freedom, shape (N, K); None for Gaussian models or
+            unless ``components``.
+        component_scales: Each component's conditional covariance (Gaussian)
+            or scale (Student-t) matrix, shape (N, K, D, D); None unless
+            asked for.
+        draws: Completed rows drawn from each row's conditional distribution
+            (multiple imputation), shape (N, draws, D), observed values
+            copied; None when no draws were asked for. Row i's draws depend
+            only on the model version, the seed and i, not on how the batch
+            was split.
+    """
+
+    model: str
+    version: int
+    means: np.ndarray
+    log_density: np.ndarray
+    std: Optional[np.ndarray] = None
+    covariances: Optional[np.ndarray] = None
+    posteriors: Optional[np.ndarray] = None
+    component_means: Optional[np.ndarray] = None
+    degrees_of_freedom: Optional[np.ndarray] = None
+    component_scales: Optional[np.ndarray] = None
+    draws: Optional[np.ndarray] = None
+
+
+@dataclass
+class ComponentMatch:
+    """One pair of matched components of two models.
+
+    Attributes:
+        component: Component index in the first model (p).
+        other_component: Component index in the other model (q).
+        distance: Distance between the two (see
+            :attr:`CompareResult.component_distance`).
+        weight: The component's weight in p.
+        other_weight: The partner's weight in q.
+    """
+
+    component: int
+    other_component: int
+    distance: float
+    weight: float
+    other_weight: float
+
+
+@dataclass
+class CompareResult:
+    """A comparison of two model versions p and q over the same features.
+
+    The Kullback-Leibler divergence KL(p||q) = E_p[log p(X) - log q(X)] is
+    estimated by Monte Carlo from ``samples`` seeded draws of p, and KL(q||p)
+    from draws of q; both are in nats and come with their standard errors.
+
+    What the numbers mean: 0 says the two models spread probability over the
+    feature space in the same way; larger values say more differently. The
+    two directions differ in general (KL is not symmetric): KL(p||q) is
+    large where p puts probability that q does not expect. What they do not
+    mean: a divergence says *that* the models differ, not *why* (a shifted
+    regime, a new component, a fitting artefact), not which model is
+    right, and not whether the difference matters for a given use. There is
+    no universal threshold: derive alert levels from your own history of
+    comparisons. Being estimates, values near 0 may come out slightly
+    negative; read every value with its standard error, and remember that
+    differences in far tails that few draws reach are estimated poorly.
+    Decisions about equipment safety belong to the operator's own
+    procedures.
+
+    Attributes:
+        model: Resource name of p.
+        version: Version of p.
+        other_model: Resource name of q.
+        other_version: Version of q.
+        samples: Draws per direction.
+        kl_forward: Estimate of KL(p||q), from draws of p.
+        kl_forward_standard_error: Its standard error.
+        kl_backward: Estimate of KL(q||p), from draws of q.
+        kl_backward_standard_error: Its standard error.
+        matches: Pairs of matched components (min(Kp, Kq) of them, ordered
+            by p's component) minimising the total distance.
+        unmatched_components: Components of p without a partner.
+        unmatched_other_components: Components of q without a partner.
+        component_distance: The distance used for the matching:
+            "bhattacharyya" (Student-t components through their
+            moment-matched Gaussians).
+    """
+
+    model: str
+    version: int
+    other_model: str
+    other_version: int
+    samples: int
+    kl_forward: float
+    kl_forward_standard_error: float
+    kl_backward: float
+    kl_backward_standard_error: float
+    matches: List[ComponentMatch]
+    unmatched_components: List[int]
+    unmatched_other_components: List[int]
+    component_distance: str
+
+    @classmethod
+    def from_proto(cls, r: Any) -> "CompareResult":
+        """Builds a comparison from a mixd.v1.CompareModelsResponse message."""
+        return cls(
+            model=r.model,
+            version=int(r.version),
+            other_model=r.other_model,
+            other_version=int(r.other_version),
+            samples=int(r.samples),
+            kl_forward=float(r.kl_forward),
+            kl_forward_standard_error=float(r.kl_forward_standard_error),
+            kl_backward=float(r.kl_backward),
+            kl_backward_standard_error=float(r.kl_backward_standard_error),
+            matches=[
+                ComponentMatch(int(m.component), int(m.other_component), float(m.distance), float(m.weight), float(m.other_weight))
+                for m in r.matches
+            ],
+            unmatched_components=[int(c) for c in r.unmatched_components],
+            unmatched_other_components=[int(c) for c in r.unmatched_other_components],
+            component_distance=r.component_distance,
+        )

@@ -3,18 +3,24 @@ package dev.mixd.client;
 /**
  * Options of {@link MixdClient#classify}. Instances are immutable; each {@code with} method returns
  * a changed copy.
+ *
+ * <p>With {@link #withObserved(boolean[][])} the posteriors are those given each row's observed
+ * features only.
  */
 public final class ClassifyOptions {
-  private static final ClassifyOptions DEFAULTS = new ClassifyOptions(0, 0, false);
+  private static final ClassifyOptions DEFAULTS = new ClassifyOptions(0, 0, false, null);
 
   private final long version;
   private final double minPosterior;
   private final boolean posteriors;
+  private final Observed observed;
 
-  private ClassifyOptions(long version, double minPosterior, boolean posteriors) {
+  private ClassifyOptions(
+      long version, double minPosterior, boolean posteriors, Observed observed) {
     this.version = version;
     this.minPosterior = minPosterior;
     this.posteriors = posteriors;
+    this.observed = observed;
   }
 
   /**
@@ -33,7 +39,7 @@ public final class ClassifyOptions {
    * @return a copy with the version set
    */
   public ClassifyOptions withVersion(long version) {
-    return new ClassifyOptions(version, minPosterior, posteriors);
+    return new ClassifyOptions(version, minPosterior, posteriors, observed);
   }
 
   /**
@@ -43,7 +49,7 @@ public final class ClassifyOptions {
    * @return a copy with the threshold set
    */
   public ClassifyOptions withMinPosterior(double threshold) {
-    return new ClassifyOptions(version, threshold, posteriors);
+    return new ClassifyOptions(version, threshold, posteriors, observed);
   }
 
   /**
@@ -53,7 +59,39 @@ public final class ClassifyOptions {
    * @return a copy with the flag set
    */
   public ClassifyOptions withPosteriors(boolean on) {
-    return new ClassifyOptions(version, minPosterior, on);
+    return new ClassifyOptions(version, minPosterior, on, observed);
+  }
+
+  /**
+   * Marks which values of the rows are observed ({@code observed[i][j]} for feature {@code j} of
+   * row {@code i}); the posteriors are then those given the observed features only. Values at
+   * unobserved positions are ignored but must still be finite (put 0 there). The array must have
+   * the rows' shape and is read, not copied, when the call sends the rows.
+   *
+   * @param observed one flag per value, the rows' shape; null means every value is observed
+   * @return a copy with the mask set
+   */
+  public ClassifyOptions withObserved(boolean[][] observed) {
+    return new ClassifyOptions(
+        version, minPosterior, posteriors, observed == null ? null : Observed.of(observed, "observed"));
+  }
+
+  /**
+   * Marks which values of the rows are observed, as {@link #withObserved(boolean[][])}, with one
+   * flag per value in row-major order (flag {@code i * cols + j} for feature {@code j} of row
+   * {@code i}).
+   *
+   * @param observed rows × cols flags, row after row; null means every value is observed
+   * @return a copy with the mask set
+   */
+  public ClassifyOptions withObserved(boolean[] observed) {
+    return new ClassifyOptions(
+        version, minPosterior, posteriors, observed == null ? null : Observed.of(observed, "observed"));
+  }
+
+  /** The mask, or null when every value is observed. */
+  Observed observed() {
+    return observed;
   }
 
   /**

@@ -43,6 +43,8 @@ import mixd.v1.MixtureServiceOuterClass.ClassifyRequest;
 import mixd.v1.MixtureServiceOuterClass.ClassifyResponse;
 import mixd.v1.MixtureServiceOuterClass.ClassifyStreamRequest;
 import mixd.v1.MixtureServiceOuterClass.ClassifyStreamResponse;
+import mixd.v1.MixtureServiceOuterClass.CompareModelsRequest;
+import mixd.v1.MixtureServiceOuterClass.CompareModelsResponse;
 import mixd.v1.MixtureServiceOuterClass.CreateFitJobRequest;
 import mixd.v1.MixtureServiceOuterClass.CreateFitJobResponse;
 import mixd.v1.MixtureServiceOuterClass.DeleteModelRequest;
@@ -60,6 +62,8 @@ import mixd.v1.MixtureServiceOuterClass.ListModelVersionsRequest;
 import mixd.v1.MixtureServiceOuterClass.ListModelVersionsResponse;
 import mixd.v1.MixtureServiceOuterClass.ListModelsRequest;
 import mixd.v1.MixtureServiceOuterClass.ListModelsResponse;
+import mixd.v1.MixtureServiceOuterClass.PredictRequest;
+import mixd.v1.MixtureServiceOuterClass.PredictResponse;
 import mixd.v1.MixtureServiceOuterClass.SampleRequest;
 import mixd.v1.MixtureServiceOuterClass.SampleStreamRequest;
 import mixd.v1.MixtureServiceOuterClass.SampleStreamResponse;
@@ -767,14 +771,16 @@ public final class MixdClient implements AutoCloseable {
     return MixdException.of(e.code(), operation, e.statusMessage(), null);
   }
 
-  /** Shape of a model version: component count and the version itself. */
+  /** Shape of a model version: component count, family and the version itself. */
   private static final class Shape {
     final int components;
     final long version;
+    final boolean studentT;
 
-    Shape(int components, long version) {
+    Shape(int components, long version, boolean studentT) {
       this.components = components;
       this.version = version;
+      this.studentT = studentT;
     }
   }
 
@@ -794,7 +800,9 @@ public final class MixdClient implements AutoCloseable {
                 r ->
                     new Shape(
                         r.getModel().getParameters().getComponentsCount(),
-                        r.getModel().getVersion())));
+                        r.getModel().getVersion(),
+                        r.getModel().getParameters().getFamily()
+                            == Types.Family.FAMILY_STUDENT_T)));
     s.whenComplete(
         (v, e) -> {
           if (e != null) {
@@ -1374,7 +1382,12 @@ public final class MixdClient implements AutoCloseable {
         throw new Wire.ResponseException("more rows in the responses than the " + n + " sent");
       }
       Wire.column(ld, "log_densities", rows, logDens, off);
-      Wire.column(pc, "percentiles", rows, pct, off);
+      if (rows > 0 && pc.getRows() == 0 && pc.getCols() == 0) {
+        // No training quantiles (an imported model without a fit report): no percentiles.
+        java.util.Arrays.fill(pct, off, off + rows, Double.NaN);
+      } else {
+        Wire.column(pc, "percentiles", rows, pct, off);
+      }
       if (wantComponents) {
         Wire.block(
             cl,
@@ -1431,6 +1444,9 @@ public final class MixdClient implements AutoCloseable {
   private CallFuture<ScoreResult> scoreCall(String model, Rows rows, ScoreOptions opts) {
     String op = "score " + model;
     Objects.requireNonNull(opts, "options");
+    if (opts.observed() != null) {
+      opts.observed().check(rows);
+    }
     CallFuture<ScoreResult> f = new CallFuture<>(op);
     if (opts.componentLogDensities()) {
       shape(
@@ -1446,7 +1462,8 @@ public final class MixdClient implements AutoCloseable {
 
   private void scoreRun(
       CallFuture<ScoreResult> f, String model, Rows rows, ScoreOptions opts, int outWidth) {
-    int step = rowsPerChunk(8L * Math.max(rows.cols(), outWidth));
+    Observed mask = opts.observed();
+    int step = rowsPerChunk(8L * Math.max(rows.cols(), outWidth) + Observed.width(mask, rows));
     ScoreAcc acc = new ScoreAcc(rows.rows(), opts.componentLogDensities());
     if (rows.rows() <= step) {
       ScoreRequest req =
@@ -1454,6 +1471,7 @@ public final class MixdClient implements AutoCloseable {
               .setModel(model)
               .setVersion(opts.version())
               .setRows(rows.encode(0, rows.rows()))
+              .setObservedMask(Observed.bytes(mask, rows, 0, rows.rows()))
               .setIncludeComponentLogDensities(opts.componentLogDensities())
               .setOutlierLevel(opts.outlierLevel())
               .setResponseEncoding(Types.MatrixEncoding.MATRIX_ENCODING_LITTLE_ENDIAN)
@@ -1485,8 +1503,11 @@ public final class MixdClient implements AutoCloseable {
             f,
             b.length - 1,
             i -> {
+              // The mask is read from every message: each chunk carries its slice.
               ScoreStreamRequest.Builder r =
-                  ScoreStreamRequest.newBuilder().setRows(rows.encode(b[i], b[i + 1]));
+                  ScoreStreamRequest.newBuilder()
+                      .setRows(rows.encode(b[i], b[i + 1]))
+                      .setObservedMask(Observed.bytes(mask, rows, b[i], b[i + 1]));
               if (i == 0) {
                 r.setModel(model)
                     .setVersion(opts.version())
@@ -1670,6 +1691,9 @@ public final class MixdClient implements AutoCloseable {
   private CallFuture<ClassifyResult> classifyCall(String model, Rows rows, ClassifyOptions opts) {
     String op = "classify " + model;
     Objects.requireNonNull(opts, "options");
+    if (opts.observed() != null) {
+      opts.observed().check(rows);
+    }
     CallFuture<ClassifyResult> f = new CallFuture<>(op);
     if (opts.posteriors()) {
       shape(
@@ -1685,7 +1709,8 @@ public final class MixdClient implements AutoCloseable {
 
   private void classifyRun(
       CallFuture<ClassifyResult> f, String model, Rows rows, ClassifyOptions opts, int outWidth) {
-    int step = rowsPerChunk(8L * Math.max(rows.cols(), outWidth));
+    Observed mask = opts.observed();
+    int step = rowsPerChunk(8L * Math.max(rows.cols(), outWidth) + Observed.width(mask, rows));
     ClassifyAcc acc = new ClassifyAcc(rows.rows(), opts.posteriors());
     if (rows.rows() <= step) {
       ClassifyRequest req =
@@ -1693,6 +1718,7 @@ public final class MixdClient implements AutoCloseable {
               .setModel(model)
               .setVersion(opts.version())
               .setRows(rows.encode(0, rows.rows()))
+              .setObservedMask(Observed.bytes(mask, rows, 0, rows.rows()))
               .setMinPosterior(opts.minPosterior())
               .setIncludePosteriors(opts.posteriors())
               .setResponseEncoding(Types.MatrixEncoding.MATRIX_ENCODING_LITTLE_ENDIAN)
@@ -1723,7 +1749,9 @@ public final class MixdClient implements AutoCloseable {
             b.length - 1,
             i -> {
               ClassifyStreamRequest.Builder r =
-                  ClassifyStreamRequest.newBuilder().setRows(rows.encode(b[i], b[i + 1]));
+                  ClassifyStreamRequest.newBuilder()
+                      .setRows(rows.encode(b[i], b[i + 1]))
+                      .setObservedMask(Observed.bytes(mask, rows, b[i], b[i + 1]));
               if (i == 0) {
                 r.setModel(model)
                     .setVersion(opts.version())
@@ -1829,6 +1857,386 @@ public final class MixdClient implements AutoCloseable {
     } catch (MixdException e) {
       return failed("classify " + model, checkFailed("classify " + model, e));
     }
+  }
+
+  // ---------------------------------------------------------------- predict
+
+  /** Decodes a matrix of {@code rows} × {@code cols} into dst at offset off. */
+  private static void into(
+      Types.Matrix m, String field, int rows, int cols, double[] dst, int off) {
+    Wire.block(
+        m,
+        field,
+        rows,
+        new Wire.Sink() {
+          @Override
+          public double[] target(int c) {
+            if (c != cols) {
+              throw new Wire.ResponseException(field + " has " + c + " columns, want " + cols);
+            }
+            return dst;
+          }
+
+          @Override
+          public int offset(int c) {
+            return off;
+          }
+        });
+  }
+
+  /** Accumulates the outputs of the Predict requests of one batch. */
+  private static final class PredictAcc {
+    final int n;
+    final int d;
+    final int k;
+    final int draws;
+    String model = "";
+    long version;
+    final double[] means;
+    final double[] logDens;
+    final double[] sd;
+    final double[] cov;
+    final double[] post;
+    final double[] cmeans;
+    final double[] cdf;
+    final double[] cscales;
+    final double[] drawn;
+
+    PredictAcc(int n, int d, Shape s, PredictOptions o) {
+      this.n = n;
+      this.d = d;
+      this.k = s.components;
+      this.draws = o.draws();
+      int nd = Math.multiplyExact(n, d);
+      int nk = Math.multiplyExact(n, k);
+      means = new double[nd];
+      logDens = new double[n];
+      sd = o.standardDeviations() ? new double[nd] : null;
+      cov = o.covariances() ? new double[Math.multiplyExact(nd, d)] : null;
+      post = o.components() ? new double[nk] : null;
+      cmeans = o.components() ? new double[Math.multiplyExact(nk, d)] : null;
+      cdf = o.components() && s.studentT ? new double[nk] : null;
+      cscales =
+          o.componentScales() ? new double[Math.multiplyExact(Math.multiplyExact(nk, d), d)] : null;
+      drawn = draws > 0 ? new double[Math.multiplyExact(nd, draws)] : null;
+    }
+
+    void add(PredictResponse r, int lo, int hi) {
+      int m = hi - lo;
+      into(r.getMeans(), "means", m, d, means, lo * d);
+      Wire.column(r.getLogDensities(), "log_densities", m, logDens, lo);
+      if (sd != null) {
+        into(r.getStandardDeviations(), "standard_deviations", m, d, sd, lo * d);
+      }
+      if (cov != null) {
+        into(r.getCovariances(), "covariances", m, d * d, cov, lo * d * d);
+      }
+      if (post != null) {
+        into(r.getPosteriors(), "posteriors", m, k, post, lo * k);
+        into(r.getComponentMeans(), "component_means", m, k * d, cmeans, lo * k * d);
+      }
+      if (cdf != null) {
+        into(r.getComponentDegreesOfFreedom(), "component_degrees_of_freedom", m, k, cdf, lo * k);
+      }
+      if (cscales != null) {
+        into(r.getComponentScales(), "component_scales", m, k * d * d, cscales, lo * k * d * d);
+      }
+      if (drawn != null) {
+        into(r.getDraws(), "draws", m * draws, d, drawn, lo * draws * d);
+      }
+    }
+
+    private Matrix matrix(double[] v, int cols) {
+      return v == null ? null : new Matrix(n, cols, v);
+    }
+
+    PredictResult result() {
+      return new PredictResult(
+          model,
+          version,
+          new Matrix(n, d, means),
+          logDens,
+          matrix(sd, d),
+          matrix(cov, d * d),
+          matrix(post, k),
+          matrix(cmeans, k * d),
+          matrix(cdf, k),
+          matrix(cscales, k * d * d),
+          drawn == null ? null : new Matrix(Math.multiplyExact(n, draws), d, drawn));
+    }
+  }
+
+  private CallFuture<PredictResult> predictCall(
+      String model, Rows rows, Observed observed, PredictOptions opts) {
+    String op = "predict " + model;
+    Objects.requireNonNull(opts, "options");
+    if (observed != null) {
+      observed.check(rows);
+    }
+    if (opts.draws() < 0) {
+      throw new InvalidArgumentException("", "draws is " + opts.draws() + ", must not be negative", null);
+    }
+    CallFuture<PredictResult> f = new CallFuture<>(op);
+    // Resolve the version once (every request of the batch uses it) and learn K, to size the
+    // requests by the width of their responses.
+    shape(f, model, opts.version(), s -> predictRun(f, model, rows, observed, opts, s));
+    return f;
+  }
+
+  private void predictRun(
+      CallFuture<PredictResult> f,
+      String model,
+      Rows rows,
+      Observed observed,
+      PredictOptions opts,
+      Shape s) {
+    long d = rows.cols();
+    long k = s.components;
+    long per = d + 1 + opts.draws() * d; // means, log-density, draws
+    if (opts.standardDeviations()) {
+      per += d;
+    }
+    if (opts.covariances()) {
+      per += d * d;
+    }
+    if (opts.components()) {
+      per += 2 * k + k * d;
+    }
+    if (opts.componentScales()) {
+      per += k * d * d;
+    }
+    int step = rowsPerChunk(Math.max(8 * per, 8 * d + Observed.width(observed, rows)));
+    int[] b = rows.rows() == 0 ? new int[] {0, 0} : bounds(rows.rows(), step);
+    PredictAcc acc = new PredictAcc(rows.rows(), rows.cols(), s, opts);
+    predictChunk(f, model, rows, observed, opts, s.version, b, 0, acc);
+  }
+
+  /** Sends the request of chunk i, then, once it is answered, the next one. */
+  private void predictChunk(
+      CallFuture<PredictResult> f,
+      String model,
+      Rows rows,
+      Observed observed,
+      PredictOptions opts,
+      long version,
+      int[] b,
+      int i,
+      PredictAcc acc) {
+    int lo = b[i];
+    int hi = b[i + 1];
+    PredictRequest req =
+        PredictRequest.newBuilder()
+            .setModel(model)
+            .setVersion(version)
+            .setRows(rows.encode(lo, hi))
+            .setObservedMask(Observed.bytes(observed, rows, lo, hi))
+            .setIncludeStandardDeviations(opts.standardDeviations())
+            .setIncludeCovariances(opts.covariances())
+            .setIncludeComponents(opts.components())
+            .setIncludeComponentScales(opts.componentScales())
+            .setDraws(opts.draws())
+            .setSeed(opts.seed())
+            .setFirstRow(lo)
+            .setResponseEncoding(Types.MatrixEncoding.MATRIX_ENCODING_LITTLE_ENDIAN)
+            .build();
+    CallFuture<Boolean> step = f.child();
+    f.start(
+        () ->
+            unary(
+                step,
+                unaryStub(),
+                MixtureServiceGrpc.MixtureServiceStub::predict,
+                req,
+                (PredictResponse r) -> {
+                  if (r.getVersion() != version) {
+                    throw new Wire.ResponseException(
+                        "version " + r.getVersion() + " answered, " + version + " asked for");
+                  }
+                  acc.model = r.getModel();
+                  acc.version = r.getVersion();
+                  acc.add(r, lo, hi);
+                  return Boolean.TRUE;
+                }));
+    step.whenComplete(
+        (v, e) -> {
+          if (e != null) {
+            f.fail(e);
+          } else if (i + 2 >= b.length) {
+            f.succeed(acc::result);
+          } else {
+            predictChunk(f, model, rows, observed, opts, version, b, i + 1, acc);
+          }
+        });
+  }
+
+  /**
+   * Predicts each row's unobserved features from its observed ones: the conditional distribution
+   * of the unobserved features under the model (conditional prediction), its mean and on request
+   * its spread, per-component parts and seeded draws (multiple imputation). The model version is
+   * resolved once; a large batch is split into several requests, sized by the width of the
+   * response, with the same result as one request (draws included). Read {@link PredictResult}
+   * for what a prediction does and does not mean.
+   *
+   * @param model the model
+   * @param rows the rows, each with the model's dimension; values at unobserved positions are
+   *     ignored but must be finite (put 0 there)
+   * @param observed one flag per value, the rows' shape, true where observed (the others are
+   *     predicted); null means every value is observed (nothing to predict)
+   * @param options version, extra outputs and draws
+   * @return the predictions, in row order
+   * @throws MixdException e.g. {@link InvalidArgumentException} for a mask of the wrong shape or
+   *     negative draws, {@link NotFoundException} for an unknown model, {@link
+   *     FailedPreconditionException} when a conditional moment asked for does not exist (a
+   *     Student-t component with too few degrees of freedom), {@link
+   *     ResourceExhaustedException} for rows × draws above the daemon's limit
+   */
+  public PredictResult predict(
+      String model, double[][] rows, boolean[][] observed, PredictOptions options) {
+    return await(predictAsync(model, rows, observed, options), "predict " + model);
+  }
+
+  /**
+   * Predicts from a flat row-major array of rows and a flat row-major mask.
+   *
+   * @param model the model
+   * @param values the rows, row after row
+   * @param cols the number of columns (the model's dimension)
+   * @param observed one flag per value, row after row (flag {@code i * cols + j} for feature
+   *     {@code j} of row {@code i}); null means every value is observed
+   * @param options version, extra outputs and draws
+   * @return the predictions, in row order
+   * @throws MixdException when the call fails
+   */
+  public PredictResult predict(
+      String model, double[] values, int cols, boolean[] observed, PredictOptions options) {
+    return await(predictAsync(model, values, cols, observed, options), "predict " + model);
+  }
+
+  /**
+   * Asynchronous {@link #predict(String, double[][], boolean[][], PredictOptions)}.
+   *
+   * @param model the model
+   * @param rows the rows
+   * @param observed one flag per value, the rows' shape; null means every value is observed
+   * @param options version, extra outputs and draws
+   * @return the future of the predictions
+   */
+  public CompletableFuture<PredictResult> predictAsync(
+      String model, double[][] rows, boolean[][] observed, PredictOptions options) {
+    try {
+      return predictCall(
+          model,
+          Rows.of(rows, "rows"),
+          observed == null ? null : Observed.of(observed, "observed"),
+          options);
+    } catch (MixdException e) {
+      return failed("predict " + model, checkFailed("predict " + model, e));
+    }
+  }
+
+  /**
+   * Asynchronous {@link #predict(String, double[], int, boolean[], PredictOptions)}.
+   *
+   * @param model the model
+   * @param values the rows, row after row
+   * @param cols the number of columns
+   * @param observed one flag per value, row after row; null means every value is observed
+   * @param options version, extra outputs and draws
+   * @return the future of the predictions
+   */
+  public CompletableFuture<PredictResult> predictAsync(
+      String model, double[] values, int cols, boolean[] observed, PredictOptions options) {
+    try {
+      return predictCall(
+          model,
+          Rows.of(values, cols, "values"),
+          observed == null ? null : Observed.of(observed, "observed"),
+          options);
+    } catch (MixdException e) {
+      return failed("predict " + model, checkFailed("predict " + model, e));
+    }
+  }
+
+  // ---------------------------------------------------------------- compare
+
+  private static CompareResult compareResult(CompareModelsResponse r) {
+    List<ComponentMatch> matches = new ArrayList<>(r.getMatchesCount());
+    for (mixd.v1.MixtureServiceOuterClass.ComponentMatch m : r.getMatchesList()) {
+      matches.add(
+          new ComponentMatch(
+              m.getComponent(),
+              m.getOtherComponent(),
+              m.getDistance(),
+              m.getWeight(),
+              m.getOtherWeight()));
+    }
+    int[] up = r.getUnmatchedComponentsList().stream().mapToInt(Integer::intValue).toArray();
+    int[] uq = r.getUnmatchedOtherComponentsList().stream().mapToInt(Integer::intValue).toArray();
+    return new CompareResult(
+        r.getModel(),
+        r.getVersion(),
+        r.getOtherModel(),
+        r.getOtherVersion(),
+        r.getSamples(),
+        r.getKlForward(),
+        r.getKlForwardStandardError(),
+        r.getKlBackward(),
+        r.getKlBackwardStandardError(),
+        matches,
+        up,
+        uq,
+        r.getComponentDistance());
+  }
+
+  /**
+   * Compares two models, or two versions of one model, over the same features: Monte Carlo
+   * estimates of the Kullback–Leibler divergence in both directions with standard errors, and a
+   * matching of their components by Bhattacharyya distance (for drift checks). Read {@link
+   * CompareResult} for what the numbers do and do not mean.
+   *
+   * @param model the first model, p
+   * @param version its version; 0 means the newest
+   * @param otherModel the second model, q; null or empty means the same model as {@code model}
+   * @param otherVersion its version; 0 means the newest
+   * @param options number and seed of the draws
+   * @return the comparison
+   * @throws MixdException e.g. {@link InvalidArgumentException} when the models have different
+   *     dimensions or feature names, {@link NotFoundException} for an unknown model or version,
+   *     {@link ResourceExhaustedException} for more draws than the daemon allows
+   */
+  public CompareResult compareModels(
+      String model, long version, String otherModel, long otherVersion, CompareOptions options) {
+    return await(
+        compareModelsAsync(model, version, otherModel, otherVersion, options), "compare " + model);
+  }
+
+  /**
+   * Asynchronous {@link #compareModels}.
+   *
+   * @param model the first model, p
+   * @param version its version; 0 means the newest
+   * @param otherModel the second model, q; null or empty means the same model
+   * @param otherVersion its version; 0 means the newest
+   * @param options number and seed of the draws
+   * @return the future of the comparison
+   */
+  public CompletableFuture<CompareResult> compareModelsAsync(
+      String model, long version, String otherModel, long otherVersion, CompareOptions options) {
+    Objects.requireNonNull(options, "options");
+    CompareModelsRequest req =
+        CompareModelsRequest.newBuilder()
+            .setModel(model)
+            .setVersion(version)
+            .setOtherModel(otherModel == null ? "" : otherModel)
+            .setOtherVersion(otherVersion)
+            .setSamples(options.samples())
+            .setSeed(options.seed())
+            .build();
+    return unary(
+        "compare " + model,
+        MixtureServiceGrpc.MixtureServiceStub::compareModels,
+        req,
+        MixdClient::compareResult);
   }
 
   // ---------------------------------------------------------------- sample

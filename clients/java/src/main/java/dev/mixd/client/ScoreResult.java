@@ -54,7 +54,9 @@ public final class ScoreResult {
   }
 
   /**
-   * Returns the mixture log-density (natural log) of each row.
+   * Returns the mixture log-density (natural log) of each row; for a row scored with unobserved
+   * features, the log-density of its observed features under the marginal mixture (0 when nothing
+   * is observed).
    *
    * @return one value per row
    */
@@ -66,7 +68,11 @@ public final class ScoreResult {
    * Returns each row's percentile in [0, 100] among the log-densities of the model's training rows:
    * 0.1 means the row is less likely under the model than 99.9% of the training rows. This is a
    * statement about the model and its training data only: a low percentile does not say that the
-   * equipment that produced the row is faulty, nor a high one that it is healthy.
+   * equipment that produced the row is faulty, nor a high one that it is healthy. Rows scored with
+   * an unobserved feature ({@link ScoreOptions#withObserved(boolean[][])}) get NaN: the
+   * log-density of their observed features is not comparable with the training rows' full ones.
+   * All are NaN for a model stored without training quantiles (an imported model without a fit
+   * report).
    *
    * @return one value per row
    */

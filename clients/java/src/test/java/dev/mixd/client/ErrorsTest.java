@@ -109,6 +109,73 @@ class ErrorsTest {
   }
 
   @Test
+  void badObservedMaskIsInvalidArgument() throws Exception {
+    double[][] rows = Pumps.rows(24, 4);
+    // Refused by the client before sending, naming the mask and the shapes.
+    InvalidArgumentException flat =
+        assertThrows(
+            InvalidArgumentException.class,
+            () ->
+                client.score(
+                    MODEL,
+                    Check.flat(rows),
+                    3,
+                    ScoreOptions.defaults().withObserved(new boolean[11])));
+    assertEquals("score " + MODEL, flat.operation());
+    assertTrue(
+        flat.statusMessage().contains("observed has 11 flags; want one per value, 4×3 = 12"),
+        flat.statusMessage());
+    boolean[][] ragged = {{true, true, true}, {true, true}, {true, true, true}, {true, true, true}};
+    InvalidArgumentException r =
+        assertThrows(
+            InvalidArgumentException.class,
+            () -> client.classify(MODEL, rows, ClassifyOptions.defaults().withObserved(ragged)));
+    assertTrue(r.statusMessage().contains("observed[1] has 2 flags"), r.statusMessage());
+    InvalidArgumentException p =
+        assertThrows(
+            InvalidArgumentException.class,
+            () -> client.predict(MODEL, rows, new boolean[3][3], PredictOptions.defaults()));
+    assertEquals("predict " + MODEL, p.operation());
+    assertTrue(p.statusMessage().contains("observed has 3 rows"), p.statusMessage());
+    assertThrows(
+        InvalidArgumentException.class,
+        () -> client.predict(MODEL, rows, null, PredictOptions.defaults().withDraws(-1, 0)));
+
+    // Refused by the daemon: a mask of the wrong length sent through the generated stub.
+    mixd.v1.MixtureServiceOuterClass.ScoreRequest req =
+        mixd.v1.MixtureServiceOuterClass.ScoreRequest.newBuilder()
+            .setModel(MODEL)
+            .setRows(Rows.of(rows, "rows").encode(0, 4))
+            .setObservedMask(com.google.protobuf.ByteString.copyFrom(new byte[] {1, 0}))
+            .build();
+    java.util.concurrent.CompletableFuture<Object> f = new java.util.concurrent.CompletableFuture<>();
+    client
+        .stub()
+        .score(
+            req,
+            new io.grpc.stub.StreamObserver<>() {
+              @Override
+              public void onNext(mixd.v1.MixtureServiceOuterClass.ScoreResponse v) {
+                f.complete(v);
+              }
+
+              @Override
+              public void onError(Throwable t) {
+                f.completeExceptionally(t);
+              }
+
+              @Override
+              public void onCompleted() {}
+            });
+    ExecutionException e = assertThrows(ExecutionException.class, () -> f.get(30, TimeUnit.SECONDS));
+    MixdException m = MixdException.from("score", e.getCause());
+    assertInstanceOf(InvalidArgumentException.class, m);
+    assertTrue(
+        m.statusMessage().contains("observed_mask has 2 bytes, want one per value, rows*cols = 4*3 = 12"),
+        m.statusMessage());
+  }
+
+  @Test
   void unknownModelIsNotFound() {
     double[][] rows = Pumps.rows(23, 5);
     NotFoundException e =

@@ -32,6 +32,34 @@ final class GoReference {
   static GoReference evaluate(
       byte[] document, double[] rows, int cols, String outputs, int sampleCount, long sampleSeed)
       throws IOException, InterruptedException {
+    return evaluate(document, rows, cols, outputs, sampleCount, sampleSeed, new Extra());
+  }
+
+  /** The inputs of the masked outputs ("marginal", "predict") and of the comparison. */
+  static final class Extra {
+    /** Observation mask of the rows, row-major; null means every value is observed. */
+    boolean[] mask;
+    /** Predict: draws per row and their seed. */
+    int draws;
+
+    long drawsSeed;
+    /** A second model document to compare the first with (mixture.Compare); null for none. */
+    byte[] other;
+
+    int compareSamples;
+    long compareSeed;
+  }
+
+  /** As {@link #evaluate(byte[], double[], int, String, int, long)}, with the extra inputs. */
+  static GoReference evaluate(
+      byte[] document,
+      double[] rows,
+      int cols,
+      String outputs,
+      int sampleCount,
+      long sampleSeed,
+      Extra extra)
+      throws IOException, InterruptedException {
     Path dir = Files.createTempDirectory(Daemon.workDir(), "evalref");
     try {
       Path doc = dir.resolve("model.json");
@@ -53,6 +81,32 @@ final class GoReference {
         cmd.add(Integer.toString(cols));
         cmd.add("-outputs");
         cmd.add(outputs);
+      }
+      if (extra.mask != null) {
+        Path mask = dir.resolve("mask.bin");
+        byte[] b = new byte[extra.mask.length];
+        for (int i = 0; i < b.length; i++) {
+          b[i] = extra.mask[i] ? (byte) 1 : (byte) 0;
+        }
+        Files.write(mask, b);
+        cmd.add("-mask");
+        cmd.add(mask.toString());
+      }
+      if (extra.draws > 0) {
+        cmd.add("-draws");
+        cmd.add(Integer.toString(extra.draws));
+        cmd.add("-draws-seed");
+        cmd.add(Long.toUnsignedString(extra.drawsSeed));
+      }
+      if (extra.other != null) {
+        Path other = dir.resolve("other.json");
+        Files.write(other, extra.other);
+        cmd.add("-other");
+        cmd.add(other.toString());
+        cmd.add("-compare-samples");
+        cmd.add(Integer.toString(extra.compareSamples));
+        cmd.add("-compare-seed");
+        cmd.add(Long.toUnsignedString(extra.compareSeed));
       }
       if (sampleCount > 0) {
         cmd.add("-sample-count");
@@ -111,6 +165,11 @@ final class GoReference {
       default:
         return Double.parseDouble(s);
     }
+  }
+
+  /** Whether the helper printed a section. */
+  boolean has(String name) {
+    return sections.containsKey(name);
   }
 
   /** A section of the output; fails when the helper did not print it. */
