@@ -39,35 +39,53 @@ func init() {
 	}
 }
 
-// loadDuration is how long TestLoad runs: MIXD_LOAD_SECONDS when set, 30 s
-// with MIXD_LARGE=1, 10 s otherwise.
-func loadDuration(t *testing.T) time.Duration {
+// loadDuration is how long a load run lasts: MIXD_LOAD_SECONDS when set,
+// def otherwise.
+func loadDuration(t *testing.T, def time.Duration) time.Duration {
 	if s := os.Getenv("MIXD_LOAD_SECONDS"); s != "" {
 		n, err := strconv.Atoi(s)
 		if err != nil || n <= 0 {
-			t.Fatalf("MIXD_LOAD_SECONDS=%q", s)
+			t.Fatalf("MIXD_LOAD_SECONDS=%q: want a positive whole number of seconds", s)
 		}
 		return time.Duration(n) * time.Second
 	}
-	if os.Getenv("MIXD_LARGE") == "1" {
-		return 30 * time.Second
-	}
-	return 10 * time.Second
+	return def
 }
 
-// TestLoad runs the daemon in this process (real directory store, real
-// fitter plugin processes, TCP on 127.0.0.1) and has 64 concurrent
-// clients score, classify and sample for a bounded time while a few of
-// them also run small fits. Only documented refusals may fail (a full fit
-// queue); afterwards no goroutine is left behind and the heap is back near
-// where it started. It logs the request rate and latency percentiles (go
-// test -v).
+// TestLoad runs the load test (see runLoad) for 10 s, under the race
+// detector in CI. With MIXD_LARGE=1 it is skipped: TestLargeLoad runs the
+// 30-second version instead.
 func TestLoad(t *testing.T) {
 	if testing.Short() {
 		t.Skip("load test")
 	}
+	if os.Getenv("MIXD_LARGE") == "1" {
+		t.Skip("MIXD_LARGE=1: TestLargeLoad runs the load for 30 s")
+	}
+	runLoad(t, loadDuration(t, 10*time.Second))
+}
+
+// TestLargeLoad runs the load test (see runLoad) for 30 s. It needs
+// MIXD_LARGE=1 (CI's large-data step, without the race detector).
+func TestLargeLoad(t *testing.T) {
+	if os.Getenv("MIXD_LARGE") != "1" {
+		t.Skip("set MIXD_LARGE=1 to run the 30-second load test")
+	}
+	if testing.Short() {
+		t.Skip("load test")
+	}
+	runLoad(t, loadDuration(t, 30*time.Second))
+}
+
+// runLoad runs the daemon in this process (real directory store, real
+// fitter plugin processes, TCP on 127.0.0.1) and has 64 concurrent
+// clients score, classify and sample for dur while a few of them also run
+// small fits. Only documented refusals may fail (a full fit queue);
+// afterwards no goroutine is left behind and the heap is back near where
+// it started. It logs the request rate and latency percentiles (go test
+// -v).
+func runLoad(t *testing.T, dur time.Duration) {
 	const clients = 64
-	dur := loadDuration(t)
 	// Cleanups run last-registered first: this one runs after the daemon
 	// has stopped (runWith's cleanup).
 	ignore := goleak.IgnoreCurrent()

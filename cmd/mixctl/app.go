@@ -37,6 +37,8 @@ const (
 	exitConflict    = 8  // FAILED_PRECONDITION, ALREADY_EXISTS or ABORTED: the request conflicts with the current state
 	exitLimit       = 9  // RESOURCE_EXHAUSTED: a daemon limit was exceeded
 	exitUnsupported = 10 // UNIMPLEMENTED: the daemon or fitter does not support what was asked
+	exitUnauthed    = 11 // UNAUTHENTICATED: no token, or one the daemon does not know
+	exitDenied      = 12 // PERMISSION_DENIED: the token's class may not do this (a read token fitting)
 )
 
 // exitCodesHelp is the exit code table shown by `mixctl help`.
@@ -53,6 +55,8 @@ const exitCodesHelp = `Exit codes:
   8   conflict with the current state (FAILED_PRECONDITION, ALREADY_EXISTS)
   9   a daemon limit was exceeded (RESOURCE_EXHAUSTED)
   10  not supported by the daemon or the chosen fitter (UNIMPLEMENTED)
+  11  not authenticated: no token, or a token the daemon does not accept (UNAUTHENTICATED)
+  12  permission denied: the token may not do this, e.g. a read token fitting (PERMISSION_DENIED)
 `
 
 // usageError is a problem with the command line (exit code 2).
@@ -120,6 +124,8 @@ type app struct {
 
 	addr    string
 	timeout time.Duration
+	// Credentials (global flags): see credentials.go.
+	tokenFile, tlsCA, tlsCert, tlsKey string
 
 	ctx    context.Context
 	cancel context.CancelFunc // releases the --timeout context
@@ -197,6 +203,10 @@ func exitCode(err error) int {
 		return exitLimit
 	case codes.Unimplemented:
 		return exitUnsupported
+	case codes.Unauthenticated:
+		return exitUnauthed
+	case codes.PermissionDenied:
+		return exitDenied
 	}
 	return exitServer
 }
@@ -281,6 +291,14 @@ func (a *app) flagSet(name string) *flag.FlagSet {
 	}
 	fs.StringVar(&a.addr, "addr", addr, "daemon address: host:port or unix:/path/to/socket (env MIXD_ADDR)")
 	fs.DurationVar(&a.timeout, "timeout", a.timeout, "give up after this long (whole command); 0 means fits and watches run until they end and other calls wait up to 30s")
+	tokenFile := a.getenv("MIXD_TOKEN_FILE")
+	if a.tokenFile != "" {
+		tokenFile = a.tokenFile
+	}
+	fs.StringVar(&a.tokenFile, "token-file", tokenFile, "file whose first non-empty line is the bearer token to send (env MIXD_TOKEN_FILE)")
+	fs.StringVar(&a.tlsCA, "tls-ca", a.tlsCA, "PEM file of the CA that signed the daemon's certificate; connects over TLS")
+	fs.StringVar(&a.tlsCert, "tls-cert", a.tlsCert, "PEM client certificate for mutual TLS (with --tls-key); connects over TLS")
+	fs.StringVar(&a.tlsKey, "tls-key", a.tlsKey, "PEM private key of --tls-cert")
 	return fs
 }
 
@@ -341,7 +359,11 @@ func (a *app) dial() (*mixdclient.Client, error) {
 	if a.client != nil {
 		return a.client, nil
 	}
-	c, err := mixdclient.Dial(a.addr)
+	opts, err := a.credentials()
+	if err != nil {
+		return nil, err
+	}
+	c, err := mixdclient.Dial(a.addr, opts...)
 	if err != nil {
 		return nil, usagef("--addr: %v", err)
 	}
@@ -352,12 +374,18 @@ func (a *app) dial() (*mixdclient.Client, error) {
 	return c, nil
 }
 
+// globalFlags are the flags every FlagSet carries; `mixctl help COMMAND`
+// leaves them out.
+var globalFlags = map[string]bool{
+	"addr": true, "timeout": true, "token-file": true, "tls-ca": true, "tls-cert": true, "tls-key": true,
+}
+
 // flagHelp lists the flags a command defines, other than the global ones.
 func flagHelp(fs *flag.FlagSet) string {
 	var b strings.Builder
 	var names []string
 	fs.VisitAll(func(f *flag.Flag) {
-		if f.Name != "addr" && f.Name != "timeout" {
+		if !globalFlags[f.Name] {
 			names = append(names, f.Name)
 		}
 	})
@@ -383,7 +411,7 @@ func (a *app) printHelp(w io.Writer) {
 	fmt.Fprintf(w, `mixctl talks to a mixd daemon: fit mixture models to CSV data, score,
 classify and sample with them, and manage stored models and fit jobs.
 
-Usage: mixctl [--addr ADDR] [--timeout D] COMMAND [flags] [args]
+Usage: mixctl [--addr ADDR] [--timeout D] [--token-file F] [--tls-ca F] COMMAND [flags] [args]
 
 Commands:
 `)
@@ -395,6 +423,12 @@ Global flags (before or after the command):
   --addr ADDR     daemon address, host:port or unix:/path (default $MIXD_ADDR, else %s)
   --timeout D     give up after D for the whole command, e.g. 30s or 10m (default: none
                   for fit and watch; 30s for each other call to the daemon)
+  --token-file F  send the bearer token on the first non-empty line of F with every
+                  call (default $MIXD_TOKEN_FILE; none when unset)
+  --tls-ca F      connect over TLS and trust the daemon's certificate if F (PEM) signed it
+  --tls-cert F --tls-key F
+                  present this client certificate (PEM) for mutual TLS; also connects
+                  over TLS, trusting the system's CAs unless --tls-ca is given
 
 Files: FILE may be "-" for standard input. CSV files need a header row.
 Errors are printed as the daemon's message followed by its gRPC code.

@@ -181,6 +181,8 @@ func TestExitCodes(t *testing.T) {
 		{status.Error(codes.AlreadyExists, "x"), exitConflict},
 		{status.Error(codes.ResourceExhausted, "x"), exitLimit},
 		{status.Error(codes.Unimplemented, "x"), exitUnsupported},
+		{status.Error(codes.Unauthenticated, "x"), exitUnauthed},
+		{status.Error(codes.PermissionDenied, "x"), exitDenied},
 		{status.Error(codes.Internal, "x"), exitServer},
 		{status.Error(codes.DataLoss, "x"), exitServer},
 		{errors.New("write output: broken pipe"), exitServer},
@@ -224,7 +226,7 @@ func TestExitCodesDocumented(t *testing.T) {
 			t.Errorf("mixctl help lacks the exit code line %q", line)
 		}
 	}
-	for code := exitOK; code <= exitUnsupported; code++ {
+	for code := exitOK; code <= exitDenied; code++ {
 		if !regexp.MustCompile(fmt.Sprintf(`(?m)^//\t%d\s`, code)).Match(doc) {
 			t.Errorf("doc.go does not document exit code %d", code)
 		}

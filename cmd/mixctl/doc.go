@@ -4,12 +4,28 @@
 //
 // Usage:
 //
-//	mixctl [--addr ADDR] [--timeout D] COMMAND [flags] [args]
+//	mixctl [--addr ADDR] [--timeout D] [--token-file F] [--tls-ca F] COMMAND [flags] [args]
 //
 // The global flags may also follow the command. --addr is host:port or
 // unix:/path/to/socket (default: $MIXD_ADDR, else 127.0.0.1:7313).
 // --timeout bounds the whole command; without it fits and watches run until
 // they end and every other call to the daemon waits at most 30 seconds.
+//
+// Credentials, for a daemon started with --token-file or TLS:
+//
+//	--token-file F            send the bearer token on the first non-empty line of F
+//	                          with every call (default: $MIXD_TOKEN_FILE)
+//	--tls-ca F                connect over TLS, trusting the daemon's certificate if
+//	                          the CA in F (PEM) signed it
+//	--tls-cert F --tls-key F  client certificate and key (PEM) for mutual TLS; also
+//	                          connects over TLS (system CAs unless --tls-ca is given)
+//
+// A read token may score, classify, sample, predict, compare and read
+// models; fit, delete, import and cancel need a full token (exit code 12
+// otherwise). Without a token, or with one the daemon does not know, a
+// daemon that requires tokens answers every call with exit code 11. TLS
+// needs a host:port address; the token also travels over plain-text
+// connections, which are meant for 127.0.0.1 and Unix sockets.
 //
 // Commands:
 //
@@ -91,4 +107,6 @@
 //	8   conflict with the current state (FAILED_PRECONDITION, ALREADY_EXISTS)
 //	9   a daemon limit was exceeded (RESOURCE_EXHAUSTED)
 //	10  not supported by the daemon or the chosen fitter (UNIMPLEMENTED)
+//	11  not authenticated: no token, or a token the daemon does not accept (UNAUTHENTICATED)
+//	12  permission denied: the token may not do this, e.g. a read token fitting (PERMISSION_DENIED)
 package main
