@@ -7,6 +7,8 @@ import (
 	"io"
 	"math"
 
+	"google.golang.org/grpc"
+
 	mixdv1 "github.com/mixd-dev/mixd/proto/mixd/v1"
 )
 
@@ -55,22 +57,10 @@ type ScoreResult struct {
 // Batches larger than one message go through ScoreStream in chunks; the
 // result is the same as one call's.
 func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts ScoreOptions) (*ScoreResult, error) {
-	if err := rows.check("rows"); err != nil {
+	step, err := c.chunkRows(ctx, "score", model, rows, opts.Observed, opts.ComponentLogDensities, &opts.Version)
+	if err != nil {
 		return nil, err
 	}
-	if err := checkObserved(opts.Observed, rows); err != nil {
-		return nil, err
-	}
-	width := rows.Cols
-	if opts.ComponentLogDensities {
-		// The response is wider than the request: size chunks by it.
-		k, version, err := c.components(ctx, model, opts.Version)
-		if err != nil {
-			return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
-		}
-		width, opts.Version = max(width, k+2), version
-	}
-	step := c.rowsPerChunk(8*width + maskWidth(opts.Observed, rows))
 	if rows.Rows <= step {
 		uctx, cancel := c.unaryContext(ctx)
 		defer cancel()
@@ -93,19 +83,10 @@ func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts Scor
 		return res, nil
 	}
 
-	ctx, cancel := context.WithCancel(ctx)
-	defer cancel()
-	stream, err := c.svc.ScoreStream(ctx)
-	if err != nil {
-		return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
-	}
-	chunks := chunkSizes(rows.Rows, step)
-	sendDone := make(chan error, 1)
-	go func() {
-		lo := 0
-		sendDone <- sendAll(len(chunks), func(i int, first bool) error {
-			req := &mixdv1.ScoreStreamRequest{Rows: rows.slice(lo, lo+chunks[i]).ToProto(), ObservedMask: maskBytes(opts.Observed, rows, lo, lo+chunks[i])}
-			lo += chunks[i]
+	res := &ScoreResult{}
+	err = streamChunks(ctx, "score", model, rows.Rows, step, c.svc.ScoreStream,
+		func(lo, hi int, first bool) *mixdv1.ScoreStreamRequest {
+			req := &mixdv1.ScoreStreamRequest{Rows: rows.slice(lo, hi).ToProto(), ObservedMask: maskBytes(opts.Observed, rows, lo, hi)}
 			if first {
 				req.Model = model
 				req.Version = opts.Version
@@ -113,33 +94,70 @@ func (c *Client) Score(ctx context.Context, model string, rows Matrix, opts Scor
 				req.ResponseEncoding = mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN
 				req.OutlierLevel = opts.OutlierLevel
 			}
+			return req
+		},
+		func(i, n int, resp *mixdv1.ScoreStreamResponse) error {
+			if i == 0 {
+				res.Model, res.Version = resp.GetModel(), resp.GetVersion()
+			}
+			res.LogLikelihood += resp.GetLogLikelihood()
+			return res.add(n, scoreColumns(resp), opts.ComponentLogDensities)
+		})
+	if err != nil {
+		return nil, err
+	}
+	return res, nil
+}
+
+// streamChunks sends rows [0, total) in chunks of at most step rows on a
+// bidirectional stream opened by open, and hands the response to each chunk,
+// in order, to take (i is the chunk index, n its row count). build makes the
+// request for rows [lo, hi); first is set on the first chunk, which carries
+// the call's settings. Sending runs concurrently with receiving; the stream
+// is cancelled when streamChunks returns. Errors name op and model, and a
+// server that answers a different number of responses than chunks sent is an
+// error.
+func streamChunks[Req, Resp any](
+	ctx context.Context, op, model string, total, step int,
+	open func(context.Context, ...grpc.CallOption) (grpc.BidiStreamingClient[Req, Resp], error),
+	build func(lo, hi int, first bool) *Req,
+	take func(i, n int, resp *Resp) error,
+) error {
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	stream, err := open(ctx)
+	if err != nil {
+		return fmt.Errorf("mixdclient: %s %s: %w", op, model, err)
+	}
+	chunks := chunkSizes(total, step)
+	sendDone := make(chan error, 1)
+	go func() {
+		lo := 0
+		sendDone <- sendAll(len(chunks), func(i int, first bool) error {
+			req := build(lo, lo+chunks[i], first)
+			lo += chunks[i]
 			return stream.Send(req)
 		}, stream.CloseSend)
 	}()
-	res := &ScoreResult{}
 	for i := 0; ; i++ {
 		resp, err := stream.Recv()
 		if err == io.EOF {
 			if serr := <-sendDone; serr != nil {
-				return nil, fmt.Errorf("mixdclient: score %s: upload: %w", model, serr)
+				return fmt.Errorf("mixdclient: %s %s: upload: %w", op, model, serr)
 			}
 			if i != len(chunks) {
-				return nil, fmt.Errorf("mixdclient: score %s: %d responses for %d chunks", model, i, len(chunks))
+				return fmt.Errorf("mixdclient: %s %s: %d responses for %d chunks", op, model, i, len(chunks))
 			}
-			return res, nil
+			return nil
 		}
 		if err != nil {
-			return nil, fmt.Errorf("mixdclient: score %s: %w", model, err)
+			return fmt.Errorf("mixdclient: %s %s: %w", op, model, err)
 		}
 		if i >= len(chunks) {
-			return nil, fmt.Errorf("mixdclient: score %s: more responses than the %d chunks sent", model, len(chunks))
+			return fmt.Errorf("mixdclient: %s %s: more responses than the %d chunks sent", op, model, len(chunks))
 		}
-		if i == 0 {
-			res.Model, res.Version = resp.GetModel(), resp.GetVersion()
-		}
-		res.LogLikelihood += resp.GetLogLikelihood()
-		if err := res.add(chunks[i], scoreColumns(resp), opts.ComponentLogDensities); err != nil {
-			return nil, fmt.Errorf("mixdclient: score %s: chunk %d: %w", model, i, err)
+		if err := take(i, chunks[i], resp); err != nil {
+			return fmt.Errorf("mixdclient: %s %s: chunk %d: %w", op, model, i, err)
 		}
 	}
 }
@@ -220,6 +238,29 @@ func appendMatrix(dst *Matrix, m Matrix, field string, n int) error {
 	return nil
 }
 
+// chunkRows checks rows and their mask and returns how many rows go in one
+// message of a score or classify call. With perComponent set each response
+// row carries K+2 values, so the chunks are sized by the wider of request and
+// response: the model's K is looked up and *version pinned to the version
+// that answered, so that every chunk uses it.
+func (c *Client) chunkRows(ctx context.Context, op, model string, rows Matrix, observed []bool, perComponent bool, version *int64) (int, error) {
+	if err := rows.check("rows"); err != nil {
+		return 0, err
+	}
+	if err := checkObserved(observed, rows); err != nil {
+		return 0, err
+	}
+	width := rows.Cols
+	if perComponent {
+		k, v, err := c.components(ctx, model, *version)
+		if err != nil {
+			return 0, fmt.Errorf("mixdclient: %s %s: %w", op, model, err)
+		}
+		width, *version = max(width, k+2), v
+	}
+	return c.rowsPerChunk(8*width + maskWidth(observed, rows)), nil
+}
+
 // components returns the number of components of a model version and the
 // version itself (resolving 0 to the newest), so that later calls use it.
 func (c *Client) components(ctx context.Context, model string, version int64) (int, int64, error) {
@@ -276,21 +317,10 @@ type ClassifyResult struct {
 // Classify returns the most probable component of every row. Batches larger
 // than one message go through ClassifyStream in chunks.
 func (c *Client) Classify(ctx context.Context, model string, rows Matrix, opts ClassifyOptions) (*ClassifyResult, error) {
-	if err := rows.check("rows"); err != nil {
+	step, err := c.chunkRows(ctx, "classify", model, rows, opts.Observed, opts.Posteriors, &opts.Version)
+	if err != nil {
 		return nil, err
 	}
-	if err := checkObserved(opts.Observed, rows); err != nil {
-		return nil, err
-	}
-	width := rows.Cols
-	if opts.Posteriors {
-		k, version, err := c.components(ctx, model, opts.Version)
-		if err != nil {
-			return nil, fmt.Errorf("mixdclient: classify %s: %w", model, err)
-		}
-		width, opts.Version = max(width, k+2), version
-	}
-	step := c.rowsPerChunk(8*width + maskWidth(opts.Observed, rows))
 	if rows.Rows <= step {
 		uctx, cancel := c.unaryContext(ctx)
 		defer cancel()
@@ -313,19 +343,10 @@ func (c *Client) Classify(ctx context.Context, model string, rows Matrix, opts C
 		return res, nil
 	}
 
-	ctx, cancel := context.WithCancel(ctx)
-	defer cancel()
-	stream, err := c.svc.ClassifyStream(ctx)
-	if err != nil {
-		return nil, fmt.Errorf("mixdclient: classify %s: %w", model, err)
-	}
-	chunks := chunkSizes(rows.Rows, step)
-	sendDone := make(chan error, 1)
-	go func() {
-		lo := 0
-		sendDone <- sendAll(len(chunks), func(i int, first bool) error {
-			req := &mixdv1.ClassifyStreamRequest{Rows: rows.slice(lo, lo+chunks[i]).ToProto(), ObservedMask: maskBytes(opts.Observed, rows, lo, lo+chunks[i])}
-			lo += chunks[i]
+	res := &ClassifyResult{}
+	err = streamChunks(ctx, "classify", model, rows.Rows, step, c.svc.ClassifyStream,
+		func(lo, hi int, first bool) *mixdv1.ClassifyStreamRequest {
+			req := &mixdv1.ClassifyStreamRequest{Rows: rows.slice(lo, hi).ToProto(), ObservedMask: maskBytes(opts.Observed, rows, lo, hi)}
 			if first {
 				req.Model = model
 				req.Version = opts.Version
@@ -333,34 +354,18 @@ func (c *Client) Classify(ctx context.Context, model string, rows Matrix, opts C
 				req.IncludePosteriors = opts.Posteriors
 				req.ResponseEncoding = mixdv1.MatrixEncoding_MATRIX_ENCODING_LITTLE_ENDIAN
 			}
-			return stream.Send(req)
-		}, stream.CloseSend)
-	}()
-	res := &ClassifyResult{}
-	for i := 0; ; i++ {
-		resp, err := stream.Recv()
-		if err == io.EOF {
-			if serr := <-sendDone; serr != nil {
-				return nil, fmt.Errorf("mixdclient: classify %s: upload: %w", model, serr)
+			return req
+		},
+		func(i, n int, resp *mixdv1.ClassifyStreamResponse) error {
+			if i == 0 {
+				res.Model, res.Version = resp.GetModel(), resp.GetVersion()
 			}
-			if i != len(chunks) {
-				return nil, fmt.Errorf("mixdclient: classify %s: %d responses for %d chunks", model, i, len(chunks))
-			}
-			return res, nil
-		}
-		if err != nil {
-			return nil, fmt.Errorf("mixdclient: classify %s: %w", model, err)
-		}
-		if i >= len(chunks) {
-			return nil, fmt.Errorf("mixdclient: classify %s: more responses than the %d chunks sent", model, len(chunks))
-		}
-		if i == 0 {
-			res.Model, res.Version = resp.GetModel(), resp.GetVersion()
-		}
-		if err := res.add(chunks[i], resp.GetComponents(), resp.GetMaxPosteriors(), resp.GetPosteriors(), resp.GetConfident(), opts.Posteriors); err != nil {
-			return nil, fmt.Errorf("mixdclient: classify %s: chunk %d: %w", model, i, err)
-		}
+			return res.add(n, resp.GetComponents(), resp.GetMaxPosteriors(), resp.GetPosteriors(), resp.GetConfident(), opts.Posteriors)
+		})
+	if err != nil {
+		return nil, err
 	}
+	return res, nil
 }
 
 // add appends one response's columns to r.

@@ -345,7 +345,16 @@ class Client:
             resp = self._score_unary(name, ver, x, mask, done, n, component_log_densities, outlier_level, timeout)
             out.add(resp, done)
         else:
-            self._score_stream(name, ver, x, mask, done, per, component_log_densities, outlier_level, timeout, out)
+            settings = dict(
+                model=name,
+                version=ver,
+                include_component_log_densities=component_log_densities,
+                response_encoding=_LE,
+                outlier_level=outlier_level,
+            )
+            self._stream_chunks(
+                self._stub.ScoreStream, svc.ScoreStreamRequest, settings, x, mask, done, per, timeout, out
+            )
         return out.result()
 
     def _score_unary(
@@ -371,40 +380,35 @@ class Client:
         )
         return self._unary(self._stub.Score, req, timeout)
 
-    def _score_stream(
+    def _stream_chunks(
         self,
-        name: str,
-        ver: int,
+        method: Callable[..., Any],
+        message: Callable[..., Any],
+        settings: Mapping[str, Any],
         x: np.ndarray,
         mask: Optional[np.ndarray],
         start: int,
         per: int,
-        comps: bool,
-        level: float,
         timeout: Optional[float],
-        out: "_ScoreAssembler",
+        out: Any,
     ) -> None:
-        def requests() -> Iterator[svc.ScoreStreamRequest]:
-            first = True
+        """Streams rows start.. of x in chunks of per rows over a
+        bidirectional method and hands each response, in order, to out.
+
+        Every chunk carries its rows and its slice of the mask (the mask is
+        read from every message); the first also carries settings.
+        """
+
+        def requests() -> Iterator[Any]:
             for lo in range(start, x.shape[0], per):
                 m = _matrix.encode(x[lo : lo + per])
-                # The mask is read from every message: each chunk carries its slice.
                 om = _mask_bytes(mask, lo, lo + per)
-                if first:
-                    first = False
-                    yield svc.ScoreStreamRequest(
-                        model=name,
-                        version=ver,
-                        rows=m,
-                        include_component_log_densities=comps,
-                        response_encoding=_LE,
-                        outlier_level=level,
-                        observed_mask=om,
-                    )
+                if lo == start:
+                    yield message(rows=m, observed_mask=om, **settings)
                 else:
-                    yield svc.ScoreStreamRequest(rows=m, observed_mask=om)
+                    yield message(rows=m, observed_mask=om)
 
-        call = self._stub.ScoreStream(requests(), timeout=self._deadline(timeout, True), metadata=self._metadata)
+        call = method(requests(), timeout=self._deadline(timeout, True), metadata=self._metadata)
         self._drain(call, out, start)
 
     def _drain(self, call: Any, out: Any, start: int) -> None:
@@ -475,30 +479,16 @@ class Client:
             resp = self._classify_unary(name, ver, x, mask, done, n, min_posterior, posteriors, timeout)
             out.add(resp, done)
         else:
-
-            def requests() -> Iterator[svc.ClassifyStreamRequest]:
-                first = True
-                for lo in range(done, n, per):
-                    m = _matrix.encode(x[lo : lo + per])
-                    om = _mask_bytes(mask, lo, lo + per)
-                    if first:
-                        first = False
-                        yield svc.ClassifyStreamRequest(
-                            model=name,
-                            version=ver,
-                            rows=m,
-                            min_posterior=min_posterior,
-                            include_posteriors=posteriors,
-                            response_encoding=_LE,
-                            observed_mask=om,
-                        )
-                    else:
-                        yield svc.ClassifyStreamRequest(rows=m, observed_mask=om)
-
-            call = self._stub.ClassifyStream(
-                requests(), timeout=self._deadline(timeout, True), metadata=self._metadata
+            settings = dict(
+                model=name,
+                version=ver,
+                min_posterior=min_posterior,
+                include_posteriors=posteriors,
+                response_encoding=_LE,
             )
-            self._drain(call, out, done)
+            self._stream_chunks(
+                self._stub.ClassifyStream, svc.ClassifyStreamRequest, settings, x, mask, done, per, timeout, out
+            )
         return out.result()
 
     def _classify_unary(

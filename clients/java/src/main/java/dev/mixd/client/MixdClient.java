@@ -823,6 +823,48 @@ public final class MixdClient implements AutoCloseable {
     return b;
   }
 
+  /** Builds the message for rows {@code [lo, hi)}; {@code first} marks the one with settings. */
+  @FunctionalInterface
+  private interface ChunkRequest<Q> {
+    Q build(int lo, int hi, boolean first);
+  }
+
+  /** Takes the response to chunk {@code i}, which held {@code rows} rows. */
+  @FunctionalInterface
+  private interface ChunkResponse<R> {
+    void accept(int i, int rows, R response);
+  }
+
+  /**
+   * The observer of a call that sends {@code n} rows in chunks of at most {@code step} rows and
+   * receives one response per chunk, in order: {@code request} builds each chunk's message,
+   * {@code response} takes each response with its chunk's index and row count, and a response
+   * beyond the chunks sent fails the call.
+   */
+  private static <Q, R> Upload<Q, R> chunked(
+      CallFuture<?> f,
+      int n,
+      int step,
+      ChunkRequest<Q> request,
+      ChunkResponse<R> response,
+      Runnable onEnd) {
+    int[] b = bounds(n, step);
+    int chunks = b.length - 1;
+    int[] received = new int[1];
+    return new Upload<>(
+        f,
+        chunks,
+        i -> request.build(b[i], b[i + 1], i == 0),
+        r -> {
+          int i = received[0]++;
+          if (i >= chunks) {
+            throw new Wire.ResponseException("more responses than the " + chunks + " chunks sent");
+          }
+          response.accept(i, b[i + 1] - b[i], r);
+        },
+        onEnd);
+  }
+
   // ---------------------------------------------------------------- fit
 
   /** Per-row extras of a fit, encoded chunk by chunk. */
@@ -1496,19 +1538,18 @@ public final class MixdClient implements AutoCloseable {
           });
       return;
     }
-    int[] b = bounds(rows.rows(), step);
-    int[] received = new int[1];
     Upload<ScoreStreamRequest, ScoreStreamResponse> up =
-        new Upload<>(
+        chunked(
             f,
-            b.length - 1,
-            i -> {
+            rows.rows(),
+            step,
+            (lo, hi, first) -> {
               // The mask is read from every message: each chunk carries its slice.
               ScoreStreamRequest.Builder r =
                   ScoreStreamRequest.newBuilder()
-                      .setRows(rows.encode(b[i], b[i + 1]))
-                      .setObservedMask(Observed.bytes(mask, rows, b[i], b[i + 1]));
-              if (i == 0) {
+                      .setRows(rows.encode(lo, hi))
+                      .setObservedMask(Observed.bytes(mask, rows, lo, hi));
+              if (first) {
                 r.setModel(model)
                     .setVersion(opts.version())
                     .setIncludeComponentLogDensities(opts.componentLogDensities())
@@ -1517,18 +1558,13 @@ public final class MixdClient implements AutoCloseable {
               }
               return r.build();
             },
-            r -> {
-              int i = received[0]++;
-              if (i >= b.length - 1) {
-                throw new Wire.ResponseException(
-                    "more responses than the " + (b.length - 1) + " chunks sent");
-              }
+            (i, n, r) -> {
               if (i == 0) {
                 acc.model = r.getModel();
                 acc.version = r.getVersion();
               }
               acc.add(
-                  b[i + 1] - b[i],
+                  n,
                   r.getLogDensities(),
                   r.getPercentiles(),
                   r.getComponentLogDensities(),
@@ -1741,18 +1777,17 @@ public final class MixdClient implements AutoCloseable {
           });
       return;
     }
-    int[] b = bounds(rows.rows(), step);
-    int[] received = new int[1];
     Upload<ClassifyStreamRequest, ClassifyStreamResponse> up =
-        new Upload<>(
+        chunked(
             f,
-            b.length - 1,
-            i -> {
+            rows.rows(),
+            step,
+            (lo, hi, first) -> {
               ClassifyStreamRequest.Builder r =
                   ClassifyStreamRequest.newBuilder()
-                      .setRows(rows.encode(b[i], b[i + 1]))
-                      .setObservedMask(Observed.bytes(mask, rows, b[i], b[i + 1]));
-              if (i == 0) {
+                      .setRows(rows.encode(lo, hi))
+                      .setObservedMask(Observed.bytes(mask, rows, lo, hi));
+              if (first) {
                 r.setModel(model)
                     .setVersion(opts.version())
                     .setMinPosterior(opts.minPosterior())
@@ -1761,18 +1796,13 @@ public final class MixdClient implements AutoCloseable {
               }
               return r.build();
             },
-            r -> {
-              int i = received[0]++;
-              if (i >= b.length - 1) {
-                throw new Wire.ResponseException(
-                    "more responses than the " + (b.length - 1) + " chunks sent");
-              }
+            (i, n, r) -> {
               if (i == 0) {
                 acc.model = r.getModel();
                 acc.version = r.getVersion();
               }
               acc.add(
-                  b[i + 1] - b[i],
+                  n,
                   r.getComponents(),
                   r.getMaxPosteriors(),
                   r.getPosteriors(),
