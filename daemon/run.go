@@ -100,6 +100,9 @@ type Config struct {
 	// MetricsListen, when set, serves Prometheus metrics at /metrics on
 	// this TCP address.
 	MetricsListen string
+	// StatusPage serves a read-only HTML status page at /status on
+	// MetricsListen (statuspage.go); it needs MetricsListen.
+	StatusPage bool
 	// HealthListen, when set, serves grpc.health.v1 alone, in plain text
 	// and without tokens, on this TCP address (for probes).
 	HealthListen string
@@ -209,6 +212,12 @@ func Run(ctx context.Context, cfg Config) (err error) {
 	defer srv.Close()
 	if ext.metrics != nil {
 		ext.metrics.watchServer(srv)
+	}
+	if cfg.StatusPage {
+		if ext.metrics == nil {
+			return fmt.Errorf("status page: it is served on the metrics listener: set --metrics-listen too")
+		}
+		ext.status = newStatusPage(srv, ext.auth, log)
 	}
 
 	lis, addr, err := Listen(cfg.Listen)

@@ -36,6 +36,7 @@ type extras struct {
 	tls     *tlsReloader   // nil: plain text
 	auth    *authenticator // nil: no tokens
 	metrics *Metrics       // nil: off
+	status  *statusPage    // nil: off (statuspage.go)
 	tracing *tracing       // nil: off
 	timeout time.Duration
 
@@ -129,6 +130,9 @@ func (x *extras) startMetrics(addr string, status io.Writer) error {
 	}
 	mux := http.NewServeMux()
 	mux.Handle("/metrics", x.metrics.Handler())
+	if x.status != nil {
+		mux.Handle(StatusPath, x.status)
+	}
 	x.metricsSrv = &http.Server{Handler: mux, ReadHeaderTimeout: 10 * time.Second}
 	done := make(chan struct{})
 	x.done = append(x.done, done)

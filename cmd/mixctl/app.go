@@ -104,6 +104,7 @@ var commands = []command{
 	{"sample", "--model M --count N [flags]", "draw synthetic rows from a model", 0, 0, sampleCommand},
 	{"predict", "--model M [flags] FILE.csv", "fill the empty cells of a CSV file from the observed ones", 1, 1, predictCommand},
 	{"compare", "MODEL[@VERSION] MODEL[@VERSION] [flags]", "compare two models or versions (KL divergence, matched components)", 2, 2, compareCommand},
+	{"plot", "--model M (--x F --y F | --history | --selection) [flags]", "draw a model: two features, fit history or selection criteria (SVG or PNG)", 0, 0, plotCommand},
 	{"models", "[--format table|json]", "list models (newest version of each)", 0, 0, modelsCommand},
 	{"show", "MODEL [--version N] [--format text|json]", "show one model version", 1, 1, showCommand},
 	{"versions", "MODEL [--format table|json]", "list the versions of a model, oldest first", 1, 1, versionsCommand},

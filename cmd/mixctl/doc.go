@@ -65,6 +65,11 @@
 //	compare MODEL[@VERSION] MODEL[@VERSION] [--samples N] [--seed S] [--format text|json]
 //	                                   KL divergence both ways with standard errors,
 //	                                   components matched by Bhattacharyya distance
+//	plot --model M --x F --y F [--data FILE.csv] [--output FILE.svg|FILE.png]
+//	                                   rows coloured by most probable component, 1-, 2-, 3-sigma
+//	                                   ellipses and shaded log-density over two features
+//	    --below P                      mark rows below the P-th training log-density percentile
+//	    --history | --selection        objective per iteration, or BIC/AIC against K
 //	models [--format table|json]       newest version of every model
 //	show MODEL [--version N] [--format text|json]
 //	versions MODEL [--format table|json]

@@ -150,6 +150,7 @@ func addExtraFlags(fs *flag.FlagSet, cfg *daemon.Config, x *extraFlags) {
 	fs.StringVar(&cfg.TokenFile, "token-file", "", "bearer token file (lines of: read|full TOKEN [LABEL]); reloaded on SIGHUP")
 	fs.DurationVar(&cfg.DefaultTimeout, "default-timeout", daemon.DefaultCallTimeout, "deadline of unary calls that arrive without one (0s: none)")
 	fs.StringVar(&cfg.MetricsListen, "metrics-listen", "", "serve Prometheus metrics at /metrics on this host:port (off when empty)")
+	fs.BoolVar(&cfg.StatusPage, "status-page", false, "serve a read-only HTML status page at /status on --metrics-listen (behind --token-file tokens when set)")
 	fs.StringVar(&cfg.HealthListen, "health-listen", "", "serve only gRPC health checks, plain text and without tokens, on this host:port (for probes)")
 	fs.StringVar(&cfg.PluginManifest, "plugin-manifest", "", "manifest pinning the SHA-256 of every executable in --plugin-dir (lines of: FILE sha256:HEX)")
 	fs.StringVar(&cfg.TraceFile, "trace-file", "", "write an OpenTelemetry span per call to this file as JSON (off when empty)")

@@ -68,6 +68,10 @@ Flags (each also accepted with a single dash):
 	--plugin-manifest FILE     "". Lines of "FILE sha256:HEX" pinning every executable
 	                           of --plugin-dir; others are refused and not listed.
 	--metrics-listen ADDR      "". Prometheus metrics at /metrics on this host:port.
+	--status-page              false. Read-only HTML page at /status on the metrics
+	                           listener: models, fits, failures, pictures; needs a
+	                           read or full token in the Authorization header when
+	                           tokens are on (Bearer, or Basic with it as password).
 	--health-listen ADDR       "". grpc.health.v1 alone, plain text, no tokens, on
 	                           this host:port (for probes).
 	--trace-file FILE          "". An OpenTelemetry span per call, as JSON lines.
