@@ -48,8 +48,9 @@ import (
 // the dead daemon's memory, so the caller must fit again. A job so marked
 // stays failed even if its daemon comes back and finishes the fit (the
 // model version it then stores is kept). A daemon judges others only after
-// it has itself reached the store for a whole Timeout, so that an outage of
-// the database does not fail the jobs of daemons that are alive. A daemon
+// it has itself reached the store for a whole Timeout plus one store call's
+// timeout (storeCallTimeout), so that an outage of the database does not
+// fail the jobs of daemons that are alive. A daemon
 // started with the id of an earlier process fails that process's
 // unfinished jobs before it serves.
 
@@ -231,11 +232,14 @@ func (r *replica) maintain() {
 	defer t.Stop()
 	failing := false
 	// This daemon judges others only once it has reached the store for a
-	// whole Timeout: after an outage of the database itself, every live
-	// daemon gets the time to renew its heartbeat first.
+	// whole Timeout plus one store call's timeout: after an outage of the
+	// database itself, every live daemon gets the time to renew its
+	// heartbeat first, even one whose last attempt was still waiting on a
+	// dead connection when the database came back.
+	grace := r.opts.Timeout + storeCallTimeout
 	connectedSince := time.Now()
 	for tick := 0; ; tick++ {
-		err := r.maintainOnce(tick%50 == 0, time.Since(connectedSince) >= r.opts.Timeout)
+		err := r.maintainOnce(tick%50 == 0, time.Since(connectedSince) >= grace)
 		switch {
 		case err != nil && !failing && r.ctx.Err() == nil:
 			r.log.Warn("replica: heartbeat failed; retrying", "error", err)
