@@ -40,14 +40,16 @@ func (l *loadedModel) name() string { return l.pb.GetName() }
 func (l *loadedModel) version() int64 { return l.pb.GetVersion() }
 
 // estimateSize is the approximate memory held by a cached model: the stored
-// parameters, the model's copy of them, its Cholesky factors and its scratch
-// workspaces (one per CPU), plus a fixed overhead.
+// parameters, the model's copy of them, its Cholesky factors (packed
+// triangles) and its scratch workspaces (one per CPU, 128 rows each), plus a
+// fixed overhead.
 func estimateSize(pb *mixdv1.Model, k, d int) int64 {
 	k64, d64 := int64(k), int64(d)
 	size := int64(4096)
-	size += 3 * k64 * d64 * d64 * 8 // covariances (stored, copied) and factors
-	size += 4 * k64 * d64 * 8       // means and per-component vectors
-	size += int64(runtime.GOMAXPROCS(0)) * 128 * (d64 + k64 + 1) * 8
+	size += 2 * k64 * d64 * d64 * 8       // covariances (stored, copied)
+	size += k64 * d64 * (d64 + 1) / 2 * 8 // factors
+	size += 4 * k64 * d64 * 8             // means and per-component vectors
+	size += int64(runtime.GOMAXPROCS(0)) * 128 * (d64 + 3*k64 + 3) * 8
 	size += int64(len(pb.GetReport().GetTrainingQuantiles().GetLevels())) * 16
 	size += int64(len(pb.GetReport().GetHistory())) * 8
 	for _, f := range pb.GetParameters().GetFeatureNames() {

@@ -123,10 +123,10 @@ func (s *ctxStream) Context() context.Context { return s.ctx }
 // begin assigns the call's request id and logger.
 func (c *callInterceptors) begin(ctx context.Context, method string) (context.Context, string, *slog.Logger) {
 	id := ""
-	if md, ok := metadata.FromIncomingContext(ctx); ok {
-		if v := md.Get(RequestIDHeader); len(v) == 1 && requestIDRE.MatchString(v[0]) {
-			id = v[0]
-		}
+	// ValueFromIncomingContext reads the one key without copying the
+	// call's whole metadata (FromIncomingContext copies it).
+	if v := metadata.ValueFromIncomingContext(ctx, RequestIDHeader); len(v) == 1 && requestIDRE.MatchString(v[0]) {
+		id = v[0]
 	}
 	if id == "" {
 		var b [8]byte

@@ -120,8 +120,9 @@ func receiveFit(stream grpc.BidiStreamingServer[fitterv1.FitRequest, fitterv1.Fi
 		return Data{}, Settings{}, invalid("settings.rows × settings.cols = %d × %d exceeds the protocol limit of %d values", rows, cols, int64(maxDataValues))
 	}
 	hasWeights, hasLabels := pbs.GetHasWeights(), pbs.GetHasLabels()
-	// Grow the buffers as chunks arrive rather than trusting the announced
-	// size for one big allocation up front.
+	// No allocation of the announced size before any data has arrived: the
+	// values take it with the first chunk (below); weights and labels, n
+	// values each rather than n·d, grow as chunks arrive.
 	const initialCap = 1 << 16
 	values := make([]float64, 0, min(rows*cols, initialCap))
 	var weights []float64
@@ -155,6 +156,15 @@ func receiveFit(stream grpc.BidiStreamingServer[fitterv1.FitRequest, fitterv1.Fi
 			return Data{}, Settings{}, invalid("%s: %d more rows exceed settings.rows = %d", name, n, rows)
 		}
 		start := len(values)
+		if i == 0 && cap(values) < int(rows*cols) {
+			// The first chunk has arrived: take the announced size at
+			// once. Growing by copying would hold the old and the new
+			// array together, up to 1.8 times the data at the end, and
+			// that transient is the fitter's peak memory. A stream that
+			// then sends fewer or more rows is refused below, and pages
+			// of the array are only touched as rows arrive.
+			values = make([]float64, 0, rows*cols)
+		}
 		values = slices.Grow(values, int(n*cols))[:start+int(n*cols)]
 		if err := wire.DecodeFloat64s(values[start:], chunk.GetValues(), name+": values"); err != nil {
 			return Data{}, Settings{}, invalid("%v", err)

@@ -33,6 +33,8 @@ type accum struct {
 	ll            float64
 	nk, sx, sxx   []float64
 	diff, lp      []float64 // scratch
+	xblk, yblk    []float64 // scratch of chunkFullBlocked: D×blockRows each
+	mblk          []float64 // scratch of chunkFullBlocked: K×blockRows
 	lo, hi        int
 	sxxPerCompLen int
 }
@@ -75,6 +77,11 @@ func newPass(p *problem, k int) *pass {
 		mk(a)
 		a.diff = make([]float64, k*d)
 		a.lp = make([]float64, k)
+		if useSIMD && (s == mixture.Full || s == mixture.Tied) {
+			a.xblk = make([]float64, d*blockRows)
+			a.yblk = make([]float64, d*blockRows)
+			a.mblk = make([]float64, k*blockRows)
+		}
 		a.lo = c * rows
 		a.hi = min(p.N, (c+1)*rows)
 	}
@@ -109,7 +116,11 @@ func (ps *pass) chunk(st *state, a *accum) {
 	clear(a.sxx)
 	switch st.Structure {
 	case mixture.Full, mixture.Tied:
-		ps.chunkFull(st, a)
+		if useSIMD {
+			ps.chunkFullBlocked(st, a)
+		} else {
+			ps.chunkFull(st, a)
+		}
 	default:
 		ps.chunkDiag(st, a)
 	}

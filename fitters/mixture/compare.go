@@ -241,10 +241,10 @@ func gaussianApprox(m *Model) ([][]float64, []float64) {
 	covs := make([][]float64, m.k)
 	lds := make([]float64, m.k)
 	for c, comp := range m.params.Components {
-		l := m.lower[m.lowerOff[c] : m.lowerOff[c]+d*d]
+		l := m.factor(c)
 		ld := 0.0
 		for i := 0; i < d; i++ {
-			ld += 2 * math.Log(l[i*d+i])
+			ld += 2 * math.Log(l[packedRow(i)+i])
 		}
 		f := 1.0
 		if m.family == StudentT && comp.DF > 2 {

@@ -67,6 +67,15 @@
 // bit-identical for any GOMAXPROCS. Scratch space is per goroutine and reused
 // through a per-model pool, so evaluation allocates nothing per row.
 //
+// Within a chunk, blocks of 128 rows are whitened column by column (each
+// step an axpy over the block's rows) and their exponentials taken
+// together. On amd64 processors with AVX2 these loops run in assembly, four
+// rows per instruction, doing for every row exactly the floating-point
+// operations of the portable Go code, in the same order, so results do not
+// depend on which code ran; the vector exponential reproduces math.Exp bit
+// for bit and is used only where it is checked to (see kernels.go). The
+// build tag purego selects the portable code.
+//
 // Sampling uses math/rand/v2's PCG seeded with (seed, a fixed constant); the
 // same seed gives the same rows on every platform and for any chunking of
 // Sampler.Next calls. A Sampler is not safe for concurrent use; make one per

@@ -30,6 +30,10 @@ type workspace struct {
 	y    []float64 // dim×blockRows, column-major: y[i*blockRows+r]
 	d2   []float64 // blockRows
 	comp []float64 // blockRows×k
+	t    []float64 // blockRows×k: arguments of exponentials
+	ex   []float64 // blockRows×k: their exponentials
+	mx   []float64 // blockRows: per-row maximum of comp
+	logS []float64 // blockRows: per-row log Σ exp(comp − mx)
 }
 
 func (m *Model) newWorkspace() *workspace {
@@ -37,6 +41,10 @@ func (m *Model) newWorkspace() *workspace {
 		y:    make([]float64, m.dim*blockRows),
 		d2:   make([]float64, blockRows),
 		comp: make([]float64, blockRows*m.k),
+		t:    make([]float64, blockRows*m.k),
+		ex:   make([]float64, blockRows*m.k),
+		mx:   make([]float64, blockRows),
+		logS: make([]float64, blockRows),
 	}
 }
 
@@ -270,13 +278,14 @@ func (m *Model) chunk(ws *workspace, j *job, c int) float64 {
 		}
 		comp := ws.comp[:n*k]
 		m.componentLogs(ws, xb, n, comp)
+		m.blockLogSumExp(ws, comp, n)
+		if j.op == opPosteriors {
+			m.posteriorBlock(ws, j, b, n)
+			continue
+		}
 		for r := 0; r < n; r++ {
 			i := b + r
-			row := comp[r*k : (r+1)*k]
-			for a, lw := range m.logW {
-				row[a] += lw
-			}
-			mx, logS := logSumExpParts(row)
+			mx, logS := ws.mx[r], ws.logS[r]
 			ld := logS + mx
 			switch j.op {
 			case opLogDensity:
@@ -287,9 +296,8 @@ func (m *Model) chunk(ws *workspace, j *job, c int) float64 {
 				} else if w := j.weights[i]; w != 0 {
 					sum += w * ld
 				}
-			case opPosteriors:
-				m.posteriorRow(j, i, row, mx, logS)
 			case opAssign:
+				row := comp[r*k : (r+1)*k]
 				best := 0
 				for a := 1; a < k; a++ {
 					if row[a] > row[best] {
@@ -309,6 +317,86 @@ func (m *Model) chunk(ws *workspace, j *job, c int) float64 {
 		}
 	}
 	return sum
+}
+
+// blockLogSumExp adds the log weights to the n rows of comp (K values per
+// row) and sets ws.mx[r] and ws.logS[r] to what logSumExpParts returns for
+// row r, with the same arithmetic (the exponentials of a whole block are
+// taken by expInto, which returns math.Exp's values bit for bit).
+func (m *Model) blockLogSumExp(ws *workspace, comp []float64, n int) {
+	k := m.k
+	t := ws.t[:n*k]
+	for r := 0; r < n; r++ {
+		row := comp[r*k : (r+1)*k]
+		for a, lw := range m.logW {
+			row[a] += lw
+		}
+		mx := row[0]
+		for _, v := range row[1:] {
+			if v > mx {
+				mx = v
+			}
+		}
+		ws.mx[r] = mx
+		tr := t[r*k : (r+1)*k]
+		if math.IsInf(mx, 0) {
+			clear(tr)
+			continue
+		}
+		for a, v := range row {
+			tr[a] = v - mx
+		}
+	}
+	ex := ws.ex[:n*k]
+	expInto(ex, t)
+	for r := 0; r < n; r++ {
+		if math.IsInf(ws.mx[r], 0) {
+			ws.logS[r] = 0
+			continue
+		}
+		sum := 0.0
+		er := ex[r*k : (r+1)*k]
+		for a, e := range t[r*k : (r+1)*k] {
+			// The two shortcuts add exactly what math.Exp would return.
+			switch {
+			case e == 0:
+				sum++
+			case e < expUnderflow: // exp(e) is +0
+			default:
+				sum += er[a]
+			}
+		}
+		ws.logS[r] = math.Log(sum)
+	}
+}
+
+// posteriorBlock writes the outputs of Posteriors for the n rows from b on,
+// after blockLogSumExp: log-posteriors (v − mx) − logS (the uniform
+// far-row values when every density underflowed) and their exponentials.
+func (m *Model) posteriorBlock(ws *workspace, j *job, b, n int) {
+	k := m.k
+	comp := ws.comp[:n*k]
+	lp := ws.t[:n*k]
+	for r := 0; r < n; r++ {
+		mx, logS := ws.mx[r], ws.logS[r]
+		if j.out != nil {
+			j.out[b+r] = logS + mx
+		}
+		lr := lp[r*k : (r+1)*k]
+		if math.IsInf(mx, -1) {
+			copy(lr, m.farLogPost)
+			continue
+		}
+		for a, v := range comp[r*k : (r+1)*k] {
+			lr[a] = (v - mx) - logS
+		}
+	}
+	if j.logPost != nil {
+		copy(j.logPost[b*k:(b+n)*k], lp)
+	}
+	if j.post != nil {
+		expInto(j.post[b*k:(b+n)*k], lp)
+	}
 }
 
 // logSumExpParts returns the maximum of s and log Σ exp(s_k − max), so that
@@ -340,27 +428,6 @@ func logSumExpParts(s []float64) (mx, logS float64) {
 		}
 	}
 	return mx, math.Log(sum)
-}
-
-// posteriorRow writes the outputs of row i; row holds log w_k + log f_k.
-func (m *Model) posteriorRow(j *job, i int, row []float64, mx, logS float64) {
-	k := m.k
-	if j.out != nil {
-		j.out[i] = logS + mx
-	}
-	far := math.IsInf(mx, -1)
-	for a, v := range row {
-		lp := (v - mx) - logS
-		if far {
-			lp = m.farLogPost[a]
-		}
-		if j.logPost != nil {
-			j.logPost[i*k+a] = lp
-		}
-		if j.post != nil {
-			j.post[i*k+a] = math.Exp(lp)
-		}
-	}
 }
 
 // componentLogs sets out[r*K+k] = log f_k(x_r) for the n rows of xb.
@@ -415,14 +482,16 @@ func (m *Model) distances(ws *workspace, xb []float64, n int, out []float64) {
 }
 
 // whiten solves L y = x_r − μ_c by forward substitution for the n rows of xb,
-// column by column over the block (so each step is an axpy over n rows), and
+// column by column over the block (whitenColumn: each column is a sequence
+// of axpy updates over the n rows, four rows per instruction with AVX2), and
 // leaves δ²_r = |y_r|² in ws.d2[:n]. Every row goes through the same
-// operations in the same order whatever block it is in. A distance that
-// overflows (or whose computation produces NaN through overflow) is +Inf.
+// operations in the same order whatever block it is in and whichever kernel
+// runs. A distance that overflows (or whose computation produces NaN
+// through overflow) is +Inf.
 func (m *Model) whiten(ws *workspace, xb []float64, n, c int) {
 	d := m.dim
 	mu := m.means[c*d : (c+1)*d]
-	l := m.lower[m.lowerOff[c] : m.lowerOff[c]+d*d]
+	l := m.factor(c)
 	inv := m.invDiag[c*d : (c+1)*d]
 	y := ws.y
 	d2 := ws.d2[:n]
@@ -434,56 +503,15 @@ func (m *Model) whiten(ws *workspace, xb []float64, n, c int) {
 	}
 	dense := m.dense[c]
 	for i := 0; i < d; i++ {
-		yi := y[i*blockRows : i*blockRows+n]
+		var li []float64
 		if dense {
-			subtractColumns(yi, y, l[i*d:i*d+i], n)
+			li = l[packedRow(i) : packedRow(i)+i]
 		}
-		s := inv[i]
-		if i == 0 {
-			for r, v := range yi {
-				v *= s
-				yi[r] = v
-				d2[r] = v * v
-			}
-		} else {
-			for r, v := range yi {
-				v *= s
-				yi[r] = v
-				d2[r] += v * v
-			}
-		}
+		whitenColumn(y[i*blockRows:i*blockRows+n], y, li, n, inv[i], d2, i == 0)
 	}
 	for r, v := range d2 {
 		if v != v {
 			d2[r] = math.Inf(1)
-		}
-	}
-}
-
-// subtractColumns sets yi[r] = yi[r] − Σ_j li[j]·y_j[r] for the n rows, the
-// terms subtracted one after another in j order (so the result is that of
-// len(li) successive axpy updates), four columns per pass over yi. Column j
-// of the block is y[j*blockRows : j*blockRows+n].
-func subtractColumns(yi, y, li []float64, n int) {
-	yi = yi[:n]
-	j := 0
-	for ; j+4 <= len(li); j += 4 {
-		l0, l1, l2, l3 := li[j], li[j+1], li[j+2], li[j+3]
-		y0 := y[j*blockRows : j*blockRows+n]
-		y1 := y[(j+1)*blockRows : (j+1)*blockRows+n]
-		y2 := y[(j+2)*blockRows : (j+2)*blockRows+n]
-		y3 := y[(j+3)*blockRows : (j+3)*blockRows+n]
-		y0, y1, y2, y3 = y0[:len(yi)], y1[:len(yi)], y2[:len(yi)], y3[:len(yi)]
-		for r := range yi {
-			yi[r] = yi[r] - l0*y0[r] - l1*y1[r] - l2*y2[r] - l3*y3[r]
-		}
-	}
-	for ; j < len(li); j++ {
-		lj := li[j]
-		yj := y[j*blockRows : j*blockRows+n]
-		yj = yj[:len(yi)]
-		for r := range yi {
-			yi[r] -= lj * yj[r]
 		}
 	}
 }

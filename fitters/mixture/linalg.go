@@ -115,16 +115,20 @@ func checkCovariance(cov []float64, dim int) (*mat.Cholesky, error) {
 	return ch, nil
 }
 
-// lowerFlat copies the lower Cholesky factor L (Σ = L Lᵀ) of ch into a
-// row-major dim×dim slice (zeros above the diagonal).
-func lowerFlat(ch *mat.Cholesky, dim int) []float64 {
+// lowerPacked copies the lower Cholesky factor L (Σ = L Lᵀ) of ch into a
+// packed slice of dim(dim+1)/2 values: row i of L, entries 0..i, starts at
+// packedRow(i).
+func lowerPacked(ch *mat.Cholesky, dim int) []float64 {
 	var l mat.TriDense
 	ch.LTo(&l)
-	out := make([]float64, dim*dim)
+	out := make([]float64, dim*(dim+1)/2)
 	for i := 0; i < dim; i++ {
 		for j := 0; j <= i; j++ {
-			out[i*dim+j] = l.At(i, j)
+			out[packedRow(i)+j] = l.At(i, j)
 		}
 	}
 	return out
 }
+
+// packedRow is the offset of row i in a packed lower-triangular matrix.
+func packedRow(i int) int { return i * (i + 1) / 2 }

@@ -23,7 +23,7 @@ type Model struct {
 	logW     []float64 // log weights (−Inf for a zero weight)
 	cumW     []float64 // cumulative weights, for sampling
 	means    []float64 // k×dim, row-major
-	lower    []float64 // distinct lower Cholesky factors, each dim×dim row-major
+	lower    []float64 // distinct lower Cholesky factors, each packed (lowerPacked)
 	lowerOff []int     // offset of component k's factor in lower
 	invDiag  []float64 // k×dim: 1/L_ii
 	dense    []bool    // factor k has non-zero entries below the diagonal
@@ -101,15 +101,15 @@ func New(p Params) (*Model, error) {
 	for i, c := range p.Components {
 		if i == 0 || chols[i] != chols[i-1] {
 			m.lowerOff[i] = len(m.lower)
-			m.lower = append(m.lower, lowerFlat(chols[i], d)...)
+			m.lower = append(m.lower, lowerPacked(chols[i], d)...)
 		} else {
 			m.lowerOff[i] = m.lowerOff[i-1]
 		}
-		l := m.lower[m.lowerOff[i] : m.lowerOff[i]+d*d]
+		l := m.factor(i)
 		for a := 0; a < d; a++ {
-			m.invDiag[i*d+a] = 1 / l[a*d+a]
+			m.invDiag[i*d+a] = 1 / l[packedRow(a)+a]
 			for b := 0; b < a; b++ {
-				if l[a*d+b] != 0 {
+				if l[packedRow(a)+b] != 0 {
 					m.dense[i] = true
 				}
 			}
@@ -126,6 +126,11 @@ func New(p Params) (*Model, error) {
 	}
 	m.pool.New = func() any { return m.newWorkspace() }
 	return m, nil
+}
+
+// factor returns component c's lower Cholesky factor, packed (lowerPacked).
+func (m *Model) factor(c int) []float64 {
+	return m.lower[m.lowerOff[c] : m.lowerOff[c]+packedRow(m.dim)]
 }
 
 // Params returns a deep copy of the model's parameters.

@@ -102,10 +102,10 @@ func (s *Sampler) draw(c int, row []float64) {
 		scale = math.Sqrt(m.df[c] / w)
 	}
 	mu := m.means[c*d : (c+1)*d]
-	l := m.lower[m.lowerOff[c] : m.lowerOff[c]+d*d]
+	l := m.factor(c)
 	for a := 0; a < d; a++ {
 		acc := 0.0
-		la := l[a*d : a*d+a+1]
+		la := l[packedRow(a) : packedRow(a)+a+1]
 		for b, v := range la {
 			acc += v * z[b]
 		}
