@@ -148,8 +148,16 @@ func newReplica(s *Server, o ReplicaOptions) (*replica, error) {
 	if w != nil {
 		s.cache.enableReplica(o.Recheck)
 		changes := w.Changes(r.ctx)
+		first := make(chan struct{})
 		r.loops.Add(1)
-		go r.consume(changes)
+		go r.consume(changes, first)
+		// Serve only once notifications flow (bounded): the first one
+		// empties the cache, which must not happen after calls have filled it.
+		select {
+		case <-first:
+		case <-time.After(storeCallTimeout):
+			r.log.Warn("replica: store change notifications not established yet; cached models are confirmed with the store on use until they are")
+		}
 	}
 	if js != nil {
 		// Unfinished jobs of an earlier process with this id died with it.
@@ -197,13 +205,18 @@ func (r *replica) close() {
 func (r *replica) sharesJobs() bool { return r != nil && r.jobs != nil }
 
 // consume applies the store's change notifications.
-func (r *replica) consume(changes <-chan store.Change) {
+// first is closed when notifications flow for the first time.
+func (r *replica) consume(changes <-chan store.Change, first chan<- struct{}) {
 	defer r.loops.Done()
 	for c := range changes {
 		switch c.Kind {
 		case store.ChangeListening:
 			r.s.cache.listening()
 			r.wakeJobs()
+			if first != nil {
+				close(first)
+				first = nil
+			}
 		case store.ChangeLost:
 			r.s.cache.lost(r.opts.Recheck)
 			r.log.Warn("replica: store change notifications lost; cached models are confirmed with the store on use until they return",
