@@ -12,11 +12,13 @@ import (
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
+	"google.golang.org/protobuf/proto"
 	"google.golang.org/protobuf/types/known/durationpb"
 
 	"github.com/mixd-dev/mixd/fitters"
 	"github.com/mixd-dev/mixd/fitters/mixture"
 	"github.com/mixd-dev/mixd/fitters/pbconv"
+	"github.com/mixd-dev/mixd/fitters/reclaim"
 	mixdv1 "github.com/mixd-dev/mixd/proto/mixd/v1"
 )
 
@@ -243,7 +245,9 @@ func (u *uploader) add(msg int, c *mixdv1.FitChunk) error {
 		return nil
 	}
 	field := fmt.Sprintf("messages[%d].chunk", msg)
-	data, err := decodeMatrix(field+".data", c.GetData(), rowLimit{u.lim.MaxFitRows, "--max-fit-rows"}, u.lim.MaxDimension)
+	// The shape first; the values are decoded straight into u.values once
+	// the limits allow them (below).
+	data, err := matrixShape(field+".data", c.GetData(), rowLimit{u.lim.MaxFitRows, "--max-fit-rows"}, u.lim.MaxDimension)
 	if err != nil {
 		return err
 	}
@@ -321,7 +325,9 @@ func (u *uploader) add(msg int, c *mixdv1.FitChunk) error {
 		}
 		u.labels = append(u.labels, ls...)
 	}
-	u.values = append(u.values, data.values...)
+	if u.values, err = appendMatrixValues(u.values, field+".data", c.GetData(), data); err != nil {
+		return err
+	}
 	u.rows += int64(data.rows)
 	return nil
 }
@@ -385,7 +391,12 @@ func startUpload[M fitMessage](s *Server, recv func() (M, error)) (*job, *fitPla
 // returned as a status.
 func upload[M fitMessage](ctx context.Context, s *Server, j *job, plan *fitPlan, first *mixdv1.FitChunk, recv func() (M, error)) error {
 	u := &uploader{lim: s.limits, plan: plan}
+	// Each chunk is garbage once its rows are copied: collect every
+	// reclaim.DefaultBytes so a large upload peaks near its own size, not
+	// twice it.
+	garbage := reclaim.New(reclaim.DefaultBytes)
 	err := u.add(0, first)
+	garbage.Done(proto.Size(first))
 	for msg := 1; err == nil; msg++ {
 		if ctx.Err() != nil {
 			err = context.Cause(ctx)
@@ -405,6 +416,7 @@ func upload[M fitMessage](ctx context.Context, s *Server, j *job, plan *fitPlan,
 			break
 		}
 		err = u.add(msg, m.GetChunk())
+		garbage.Done(proto.Size(m.GetChunk()))
 		j.setRows(u.rows)
 	}
 	j.setRows(u.rows)

@@ -3,6 +3,7 @@ package daemon
 import (
 	"encoding/binary"
 	"math"
+	"slices"
 
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
@@ -40,6 +41,29 @@ type rowLimit struct {
 // columns. A nil matrix is an empty one. All values must be finite; the
 // error names the row and column of the first one that is not.
 func decodeMatrix(field string, m *mixdv1.Matrix, maxRows rowLimit, maxCols int64) (matrix, error) {
+	out, err := matrixShape(field, m, maxRows, maxCols)
+	if err != nil || out.rows == 0 {
+		return out, err
+	}
+	if !out.littleEndian {
+		// The request's own slice: no copy.
+		if err := checkFiniteValues(field, m.GetValues(), out.cols); err != nil {
+			return matrix{}, err
+		}
+		out.values = m.GetValues()
+		return out, nil
+	}
+	out.values, err = appendMatrixValues(make([]float64, 0, out.rows*out.cols), field, m, out)
+	if err != nil {
+		return matrix{}, err
+	}
+	return out, nil
+}
+
+// matrixShape validates m's dimensions, limits and encoding (as
+// decodeMatrix does) without decoding its values: the result has rows,
+// cols and littleEndian set and no values.
+func matrixShape(field string, m *mixdv1.Matrix, maxRows rowLimit, maxCols int64) (matrix, error) {
 	if m == nil {
 		return matrix{}, nil
 	}
@@ -64,34 +88,50 @@ func decodeMatrix(field string, m *mixdv1.Matrix, maxRows rowLimit, maxCols int6
 		return matrix{}, invalidf("%s.cols is 0 but %s.rows is %d: every row needs at least one column", field, field, rows)
 	}
 	n := rows * cols // both bounded above: no overflow
-	out := matrix{rows: int(rows), cols: int(cols), littleEndian: nb > 0}
-	switch {
-	case nb > 0:
+	if nb > 0 {
 		if int64(nb) != n*8 {
 			return matrix{}, invalidf("%s.little_endian has %d bytes, want rows*cols*8 = %d*%d*8 = %d", field, nb, rows, cols, n*8)
 		}
-		b := m.GetLittleEndian()
-		out.values = make([]float64, n)
-		for i := range out.values {
-			v := math.Float64frombits(binary.LittleEndian.Uint64(b[8*i:]))
-			if v-v != 0 {
-				return matrix{}, nonFinite(field, i, int(cols), v)
-			}
-			out.values[i] = v
-		}
-	default:
-		if int64(nv) != n {
-			return matrix{}, invalidf("%s.values has %d values, want rows*cols = %d*%d = %d", field, nv, rows, cols, n)
-		}
-		v := m.GetValues()
-		for i, x := range v {
-			if x-x != 0 {
-				return matrix{}, nonFinite(field, i, int(cols), x)
-			}
-		}
-		out.values = v
+	} else if int64(nv) != n {
+		return matrix{}, invalidf("%s.values has %d values, want rows*cols = %d*%d = %d", field, nv, rows, cols, n)
 	}
-	return out, nil
+	return matrix{rows: int(rows), cols: int(cols), littleEndian: nb > 0}, nil
+}
+
+// appendMatrixValues appends the values of m, whose shape matrixShape
+// returned, to dst, checking that each is finite. Decoding straight into
+// the destination keeps a large upload from holding a second copy of each
+// chunk. On error dst may hold part of m.
+func appendMatrixValues(dst []float64, field string, m *mixdv1.Matrix, shape matrix) ([]float64, error) {
+	if !shape.littleEndian {
+		if err := checkFiniteValues(field, m.GetValues(), shape.cols); err != nil {
+			return dst, err
+		}
+		return append(dst, m.GetValues()...), nil
+	}
+	b := m.GetLittleEndian()
+	start := len(dst)
+	dst = slices.Grow(dst, len(b)/8)[:start+len(b)/8]
+	out := dst[start:]
+	for i := range out {
+		v := math.Float64frombits(binary.LittleEndian.Uint64(b[8*i:]))
+		if v-v != 0 {
+			return dst[:start+i], nonFinite(field, i, shape.cols, v)
+		}
+		out[i] = v
+	}
+	return dst, nil
+}
+
+// checkFiniteValues returns the error for the first value of v (a matrix of cols
+// columns) that is not finite.
+func checkFiniteValues(field string, v []float64, cols int) error {
+	for i, x := range v {
+		if x-x != 0 {
+			return nonFinite(field, i, cols, x)
+		}
+	}
+	return nil
 }
 
 func nonFinite(field string, i, cols int, v float64) error {

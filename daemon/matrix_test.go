@@ -152,11 +152,25 @@ func FuzzDecodeMatrix(f *testing.F) {
 			m.LittleEndian = payload
 		}
 		got, err := decodeMatrix("rows", m, rowLimit{1000, "--max-rows"}, 64)
+		// The upload's path (shape, then values appended in place after
+		// earlier rows) must accept and refuse exactly the same.
+		prefix := []float64{-1, -2}
+		shape, aerr := matrixShape("rows", m, rowLimit{1000, "--max-rows"}, 64)
+		var appended []float64
+		if aerr == nil {
+			appended, aerr = appendMatrixValues(slices.Clone(prefix), "rows", m, shape)
+		}
+		if (err == nil) != (aerr == nil) || (err != nil && err.Error() != aerr.Error()) {
+			t.Fatalf("decodeMatrix: %v; matrixShape + appendMatrixValues: %v", err, aerr)
+		}
 		if err != nil {
 			if c := status.Code(err); c != codes.InvalidArgument && c != codes.ResourceExhausted {
 				t.Fatalf("code %s: %v", c, err)
 			}
 			return
+		}
+		if !slices.Equal(appended[:2], prefix) || !slices.Equal(appended[2:], got.values) {
+			t.Fatalf("appended %v after %v, decoded %v", appended[2:], prefix, got.values)
 		}
 		if int64(got.rows) != rows || int64(got.cols) != cols || len(got.values) != got.rows*got.cols {
 			t.Fatalf("decoded %d×%d with %d values from %d×%d", got.rows, got.cols, len(got.values), rows, cols)

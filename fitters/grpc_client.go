@@ -8,6 +8,7 @@ import (
 	"math"
 
 	"github.com/mixd-dev/mixd/fitters/internal/wire"
+	"github.com/mixd-dev/mixd/fitters/reclaim"
 	fitterv1 "github.com/mixd-dev/mixd/proto/mixd/fitter/v1"
 )
 
@@ -133,6 +134,9 @@ func sendFit(send func(*fitterv1.FitRequest) error, pbs *fitterv1.Settings, d Da
 		return err
 	}
 	per := chunkRows(d.Cols, d.Weights != nil, labels != nil)
+	// Each chunk is garbage once sent: collect every reclaim.DefaultBytes
+	// so the daemon does not hold a second copy of the rows in garbage.
+	garbage := reclaim.New(reclaim.DefaultBytes)
 	l32 := make([]int32, 0, min(per, d.Rows))
 	for lo := 0; lo < d.Rows; lo += per {
 		hi := min(lo+per, d.Rows)
@@ -151,6 +155,7 @@ func sendFit(send func(*fitterv1.FitRequest) error, pbs *fitterv1.Settings, d Da
 		if err := send(&fitterv1.FitRequest{Message: &fitterv1.FitRequest_Chunk{Chunk: chunk}}); err != nil {
 			return err
 		}
+		garbage.Done(len(chunk.Values) + len(chunk.Weights) + len(chunk.Labels))
 	}
 	return nil
 }

@@ -13,6 +13,7 @@ import (
 	"google.golang.org/grpc/status"
 
 	"github.com/mixd-dev/mixd/fitters/internal/wire"
+	"github.com/mixd-dev/mixd/fitters/reclaim"
 	fitterv1 "github.com/mixd-dev/mixd/proto/mixd/fitter/v1"
 )
 
@@ -134,6 +135,10 @@ func receiveFit(stream grpc.BidiStreamingServer[fitterv1.FitRequest, fitterv1.Fi
 	if hasLabels {
 		labels = make([]int, 0, min(rows, initialCap))
 	}
+	// Each chunk is garbage once decoded: collect every
+	// reclaim.DefaultBytes so the process peaks near the data's size plus
+	// the fit's work space, not twice the data.
+	garbage := reclaim.New(reclaim.DefaultBytes)
 	var got int64
 	for i := 0; ; i++ {
 		msg, err := stream.Recv()
@@ -192,6 +197,7 @@ func receiveFit(stream grpc.BidiStreamingServer[fitterv1.FitRequest, fitterv1.Fi
 			return Data{}, Settings{}, invalid("%s: carries labels but settings.has_labels is false", name)
 		}
 		got += n
+		garbage.Done(len(chunk.GetValues()) + len(chunk.GetWeights()) + len(chunk.GetLabels()))
 	}
 	if got != rows {
 		return Data{}, Settings{}, invalid("received %d rows, but settings.rows = %d", got, rows)
