@@ -280,7 +280,7 @@ func (a *authenticator) check(ctx context.Context, method string) (context.Conte
 	if need := requiredClass(method); e.class < need {
 		return ctx, status.Errorf(codes.PermissionDenied, "%s needs a token of class %q; the token %q is of class %q", method, need, e.label, e.class)
 	}
-	if cs, ok := ctx.Value(callStateKey{}).(*callState); ok {
+	if cs := callStateFrom(ctx); cs != nil {
 		cs.token = e.label
 	}
 	return context.WithValue(ctx, tokenLabelKey{}, e.label), nil

@@ -6,6 +6,7 @@ import (
 	"encoding/hex"
 	"log/slog"
 	"regexp"
+	"sync"
 	"time"
 
 	"google.golang.org/grpc"
@@ -30,25 +31,52 @@ const DefaultCallTimeout = 2 * time.Minute
 
 var requestIDRE = regexp.MustCompile(`^[A-Za-z0-9._:-]{1,64}$`)
 
-// loggerKey carries a call's logger in its context.
-type loggerKey struct{}
+// callInfoKey carries a call's *callInfo in its context.
+type callInfoKey struct{}
+
+// callInfo is what the outermost interceptor knows about a call: its
+// request id, its method and the state the inner interceptors record for
+// the call log. One context value holds all of it, and the call's logger
+// is built only when something logs: a successful call at the default
+// level logs nothing, and building a logger with attributes costs about as
+// much as classifying one row.
+type callInfo struct {
+	id, method string
+	base       *slog.Logger
+	state      callState
+
+	once sync.Once
+	log  *slog.Logger
+}
+
+// logger returns the call's logger: the base logger with request_id and
+// method.
+func (ci *callInfo) logger() *slog.Logger {
+	ci.once.Do(func() { ci.log = ci.base.With("request_id", ci.id, "method", ci.method) })
+	return ci.log
+}
+
+func callInfoFrom(ctx context.Context) *callInfo {
+	ci, _ := ctx.Value(callInfoKey{}).(*callInfo)
+	return ci
+}
 
 // LoggerFrom returns the logger of the call ctx belongs to (it carries the
 // request id and the method), or fallback outside a call.
 func LoggerFrom(ctx context.Context, fallback *slog.Logger) *slog.Logger {
-	if l, ok := ctx.Value(loggerKey{}).(*slog.Logger); ok {
-		return l
+	if ci := callInfoFrom(ctx); ci != nil {
+		return ci.logger()
 	}
 	return fallback
 }
 
 // RequestID returns the request id of the call ctx belongs to, or "".
 func RequestID(ctx context.Context) string {
-	id, _ := ctx.Value(requestIDKey{}).(string)
-	return id
+	if ci := callInfoFrom(ctx); ci != nil {
+		return ci.id
+	}
+	return ""
 }
-
-type requestIDKey struct{}
 
 // callState is shared by a call's interceptors: the inner ones record what
 // the outer call log reports.
@@ -56,7 +84,13 @@ type callState struct {
 	token string // label of the bearer token, when tokens are in use
 }
 
-type callStateKey struct{}
+// callStateFrom returns the call state of the call ctx belongs to, or nil.
+func callStateFrom(ctx context.Context) *callState {
+	if ci := callInfoFrom(ctx); ci != nil {
+		return &ci.state
+	}
+	return nil
+}
 
 // callInterceptors are the interceptors every call passes, outermost
 // first: request id and call log, metrics (when on), bearer tokens (when
@@ -120,8 +154,9 @@ type ctxStream struct {
 
 func (s *ctxStream) Context() context.Context { return s.ctx }
 
-// begin assigns the call's request id and logger.
-func (c *callInterceptors) begin(ctx context.Context, method string) (context.Context, string, *slog.Logger) {
+// begin assigns the call's request id and records it, with the method,
+// in the returned context.
+func (c *callInterceptors) begin(ctx context.Context, method string) (context.Context, *callInfo) {
 	id := ""
 	// ValueFromIncomingContext reads the one key without copying the
 	// call's whole metadata (FromIncomingContext copies it).
@@ -133,17 +168,14 @@ func (c *callInterceptors) begin(ctx context.Context, method string) (context.Co
 		_, _ = rand.Read(b[:]) // crypto/rand.Read does not fail
 		id = hex.EncodeToString(b[:])
 	}
-	l := c.log.With("request_id", id, "method", method)
-	ctx = context.WithValue(ctx, requestIDKey{}, id)
-	ctx = context.WithValue(ctx, loggerKey{}, l)
-	ctx = context.WithValue(ctx, callStateKey{}, &callState{})
-	return ctx, id, l
+	ci := &callInfo{id: id, method: method, base: c.log}
+	return context.WithValue(ctx, callInfoKey{}, ci), ci
 }
 
 // end logs the call's outcome: successful calls at level Debug, refused
 // credentials at Warn, server faults (INTERNAL, UNKNOWN, DATA_LOSS) at
 // Error, other failures at Info.
-func (c *callInterceptors) end(ctx context.Context, l *slog.Logger, start time.Time, err error) {
+func (c *callInterceptors) end(ctx context.Context, ci *callInfo, start time.Time, err error) {
 	code := status.Code(err)
 	level := slog.LevelInfo
 	switch code {
@@ -154,37 +186,36 @@ func (c *callInterceptors) end(ctx context.Context, l *slog.Logger, start time.T
 	case codes.Internal, codes.Unknown, codes.DataLoss:
 		level = slog.LevelError
 	}
-	if !l.Enabled(ctx, level) {
+	if !c.log.Enabled(ctx, level) { // the call's logger has the same handler
 		return
 	}
 	attrs := []slog.Attr{slog.String("code", code.String()), slog.Duration("duration", time.Since(start))}
 	if p, ok := peer.FromContext(ctx); ok && p.Addr != nil {
 		attrs = append(attrs, slog.String("peer", p.Addr.String()))
 	}
-	if cs, ok := ctx.Value(callStateKey{}).(*callState); ok && cs.token != "" {
-		t := cs.token
+	if t := ci.state.token; t != "" {
 		attrs = append(attrs, slog.String("token", t))
 	}
 	if err != nil {
 		attrs = append(attrs, slog.String("error", status.Convert(err).Message()))
 	}
-	l.LogAttrs(ctx, level, "call", attrs...)
+	ci.logger().LogAttrs(ctx, level, "call", attrs...)
 }
 
 func (c *callInterceptors) unaryRequestID(ctx context.Context, req any, info *grpc.UnaryServerInfo, h grpc.UnaryHandler) (any, error) {
 	start := time.Now()
-	ctx, id, l := c.begin(ctx, info.FullMethod)
-	_ = grpc.SetHeader(ctx, metadata.Pairs(RequestIDHeader, id))
+	ctx, ci := c.begin(ctx, info.FullMethod)
+	_ = grpc.SetHeader(ctx, metadata.MD{RequestIDHeader: {ci.id}})
 	resp, err := h(ctx, req)
-	c.end(ctx, l, start, err)
+	c.end(ctx, ci, start, err)
 	return resp, err
 }
 
 func (c *callInterceptors) streamRequestID(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, h grpc.StreamHandler) error {
 	start := time.Now()
-	ctx, id, l := c.begin(ss.Context(), info.FullMethod)
-	_ = ss.SetHeader(metadata.Pairs(RequestIDHeader, id))
+	ctx, ci := c.begin(ss.Context(), info.FullMethod)
+	_ = ss.SetHeader(metadata.MD{RequestIDHeader: {ci.id}})
 	err := h(srv, &ctxStream{ServerStream: ss, ctx: ctx})
-	c.end(ctx, l, start, err)
+	c.end(ctx, ci, start, err)
 	return err
 }

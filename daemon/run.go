@@ -8,6 +8,7 @@ import (
 	"log/slog"
 	"net"
 	"os"
+	"runtime"
 	"runtime/debug"
 	"strings"
 	"time"
@@ -305,6 +306,13 @@ func Run(ctx context.Context, cfg Config) (err error) {
 func NewGRPCServer(srv mixdv1.MixtureServiceServer, lim Limits, log *slog.Logger, extra ...grpc.ServerOption) *grpc.Server {
 	lim = lim.withDefaults()
 	gs := grpc.NewServer(append(extra,
+		// Long-lived goroutines that keep their grown stacks: with a
+		// fresh goroutine per call, growing its stack was about an eighth
+		// of the daemon's CPU under many concurrent small calls (see
+		// DEVELOPERS.md, Benchmarks). Calls beyond the workers get a
+		// goroutine of their own as before. (An experimental grpc-go
+		// option; without it the server behaves the same, only slower.)
+		grpc.NumStreamWorkers(uint32(max(64, 4*runtime.GOMAXPROCS(0)))),
 		grpc.MaxRecvMsgSize(lim.MaxMessageBytes),
 		grpc.MaxSendMsgSize(lim.MaxMessageBytes),
 		grpc.ChainUnaryInterceptor(func(ctx context.Context, req any, info *grpc.UnaryServerInfo, h grpc.UnaryHandler) (resp any, err error) {

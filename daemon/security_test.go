@@ -2,6 +2,7 @@ package daemon
 
 import (
 	"bufio"
+	"bytes"
 	"context"
 	"crypto/ecdsa"
 	"crypto/elliptic"
@@ -9,7 +10,9 @@ import (
 	"crypto/tls"
 	"crypto/x509"
 	"crypto/x509/pkix"
+	"encoding/json"
 	"encoding/pem"
+	"fmt"
 	"io"
 	"log/slog"
 	"math/big"
@@ -17,6 +20,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -597,5 +601,84 @@ func TestDefaultTimeout(t *testing.T) {
 	start = time.Now()
 	if err := run(ctx); status.Code(err) != codes.DeadlineExceeded || time.Since(start) < 250*time.Millisecond {
 		t.Fatalf("caller's deadline: %v after %v", err, time.Since(start))
+	}
+}
+
+// lockedBuffer is an io.Writer safe for the daemon's concurrent logging.
+type lockedBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (w *lockedBuffer) Write(p []byte) (int, error) {
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	return w.b.Write(p)
+}
+
+func (w *lockedBuffer) records(t *testing.T) []map[string]any {
+	t.Helper()
+	w.mu.Lock()
+	defer w.mu.Unlock()
+	var out []map[string]any
+	for _, line := range strings.Split(strings.TrimSpace(w.b.String()), "\n") {
+		if line == "" {
+			continue
+		}
+		var rec map[string]any
+		if err := json.Unmarshal([]byte(line), &rec); err != nil {
+			t.Fatalf("log line %q: %v", line, err)
+		}
+		out = append(out, rec)
+	}
+	return out
+}
+
+// TestCallLog checks the one log record per call: at the default level a
+// successful call writes none, a failed one writes its request id, method,
+// code and the label (never the secret) of the caller's token; at Debug the
+// successful call is there too.
+func TestCallLog(t *testing.T) {
+	for _, level := range []slog.Level{slog.LevelInfo, slog.LevelDebug} {
+		t.Run(level.String(), func(t *testing.T) {
+			dir := t.TempDir()
+			tokFile := filepath.Join(dir, "tokens")
+			writeFile(t, tokFile, "read "+readToken+" dashboards\n")
+			var logs lockedBuffer
+			lines, _ := runWith(t, Config{TokenFile: tokFile, Logger: slog.New(slog.NewJSONHandler(&logs, &slog.HandlerOptions{Level: level}))})
+			c := mixdv1.NewMixtureServiceClient(dialWith(t, lines[ListeningPrefix],
+				grpc.WithTransportCredentials(insecure.NewCredentials()), grpc.WithPerRPCCredentials(bearer(readToken))))
+			ctx := metadata.AppendToOutgoingContext(context.Background(), RequestIDHeader, "log-test-1")
+			if _, err := c.ListModels(ctx, &mixdv1.ListModelsRequest{}); err != nil {
+				t.Fatal(err)
+			}
+			ctx = metadata.AppendToOutgoingContext(context.Background(), RequestIDHeader, "log-test-2")
+			if _, err := c.GetModel(ctx, &mixdv1.GetModelRequest{Name: "nope"}); status.Code(err) != codes.NotFound {
+				t.Fatalf("GetModel: %v", err)
+			}
+			calls := map[string]map[string]any{}
+			waitFor(t, "the call log", func() bool {
+				for _, rec := range logs.records(t) {
+					if rec["msg"] == "call" {
+						calls[rec["request_id"].(string)] = rec
+					}
+				}
+				return calls["log-test-2"] != nil
+			})
+			failed := calls["log-test-2"]
+			if failed["method"] != "/mixd.v1.MixtureService/GetModel" || failed["code"] != "NotFound" || failed["token"] != "dashboards" || failed["level"] != "INFO" {
+				t.Fatalf("failed call's record %v", failed)
+			}
+			ok, logged := calls["log-test-1"]
+			if logged != (level == slog.LevelDebug) {
+				t.Fatalf("successful call logged = %v at level %v (%v)", logged, level, ok)
+			}
+			if logged && (ok["method"] != "/mixd.v1.MixtureService/ListModels" || ok["code"] != "OK" || ok["token"] != "dashboards") {
+				t.Fatalf("successful call's record %v", ok)
+			}
+			if strings.Contains(fmt.Sprint(calls), readToken) {
+				t.Fatal("a call record holds the token itself")
+			}
+		})
 	}
 }
