@@ -4,7 +4,6 @@ import (
 	"context"
 	"fmt"
 	"log/slog"
-	"strings"
 	"time"
 
 	"github.com/mixd-dev/mixd/daemon/store"
@@ -17,7 +16,7 @@ const storeOpenTimeout = 30 * time.Second
 // openSharedStore opens the PostgreSQL store at url (Config.StoreURL).
 func openSharedStore(ctx context.Context, url string, log *slog.Logger) (store.Store, error) {
 	if !store.IsPostgresURL(url) {
-		return nil, fmt.Errorf("store %q: want a postgres:// or postgresql:// URL (or no store URL, for the directory store)", redactURL(url))
+		return nil, fmt.Errorf("store %q: want a postgres:// or postgresql:// URL (or no store URL, for the directory store)", store.RedactURL(url))
 	}
 	ctx, cancel := context.WithTimeout(ctx, storeOpenTimeout)
 	defer cancel()
@@ -27,20 +26,4 @@ func openSharedStore(ctx context.Context, url string, log *slog.Logger) (store.S
 	}
 	log.Info("model store: PostgreSQL", "where", ps.Where(), "schema_version", store.SchemaVersion())
 	return ps, nil
-}
-
-// redactURL hides a password in a connection URL shown in a message.
-func redactURL(s string) string {
-	start := 0
-	if i := strings.Index(s, "://"); i >= 0 {
-		start = i + 3
-	}
-	at := strings.LastIndex(s, "@")
-	if at < start {
-		return s
-	}
-	if colon := strings.Index(s[start:at], ":"); colon >= 0 {
-		return s[:start+colon+1] + "xxxxx" + s[at:]
-	}
-	return s
 }

@@ -10,8 +10,9 @@ import (
 )
 
 // storeURL is the --store flag: empty (the directory store) or a
-// postgres:// URL. It is checked when set, so a bad value is a usage error
-// whether it comes from the command line, MIXD_STORE or the config file.
+// postgres:// URL. It is checked by checkStoreURL once every source is
+// applied, not when set: the flag package's own error for a refused value
+// would print the value, password and all.
 type storeURL struct{ url *string }
 
 func (s storeURL) String() string {
@@ -22,10 +23,17 @@ func (s storeURL) String() string {
 }
 
 func (s storeURL) Set(v string) error {
-	if v != "" && !store.IsPostgresURL(v) {
-		return fmt.Errorf("want a postgres:// or postgresql:// URL (leave it empty for the directory store of --data-dir)")
-	}
 	*s.url = v
+	return nil
+}
+
+// checkStoreURL refuses a --store value (from the command line, MIXD_STORE
+// or the config file) that is not a PostgreSQL URL, showing it without its
+// password.
+func checkStoreURL(v string) error {
+	if v != "" && !store.IsPostgresURL(v) {
+		return fmt.Errorf("--store %q: want a postgres:// or postgresql:// URL (leave it empty for the directory store of --data-dir)", store.RedactURL(v))
+	}
 	return nil
 }
 
@@ -37,8 +45,11 @@ func addStoreFlags(fs *flag.FlagSet, cfg *daemon.Config) {
 	fs.DurationVar(&cfg.Replica.Recheck, "replica-recheck", daemon.DefaultRecheck, "with --store: while change notifications from the database are down, cached models older than this are confirmed with the database on use")
 }
 
-// checkStoreFlags validates the replica durations.
+// checkStoreFlags validates the store URL and the replica durations.
 func checkStoreFlags(cfg *daemon.Config) error {
+	if err := checkStoreURL(cfg.StoreURL); err != nil {
+		return err
+	}
 	for _, d := range []struct {
 		flag string
 		v    time.Duration

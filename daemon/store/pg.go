@@ -120,6 +120,24 @@ func IsPostgresURL(s string) bool {
 	return strings.HasPrefix(s, "postgres://") || strings.HasPrefix(s, "postgresql://")
 }
 
+// RedactURL hides the password of a connection URL (user:password@host)
+// for a message: "postgres://u:secret@db/x" becomes
+// "postgres://u:xxxxx@db/x". A string without one is returned as it is.
+func RedactURL(s string) string {
+	start := 0
+	if i := strings.Index(s, "://"); i >= 0 {
+		start = i + 3
+	}
+	at := strings.LastIndex(s, "@")
+	if at < start {
+		return s
+	}
+	if colon := strings.Index(s[start:at], ":"); colon >= 0 {
+		return s[:start+colon+1] + "xxxxx" + s[at:]
+	}
+	return s
+}
+
 // OpenPostgres connects to the database named by connString (a
 // postgres:// URL or a keyword/value string, as libpq accepts), creates or
 // migrates mixd's tables, and returns the store. The database must be
