@@ -5,6 +5,10 @@ import (
 	"math/rand/v2"
 	"testing"
 
+	"google.golang.org/grpc"
+	"google.golang.org/grpc/credentials/insecure"
+	healthpb "google.golang.org/grpc/health/grpc_health_v1"
+
 	mixdv1 "github.com/mixd-dev/mixd/proto/mixd/v1"
 )
 
@@ -74,4 +78,37 @@ func BenchmarkDecodeMatrix(b *testing.B) {
 			b.Fatal(err)
 		}
 	}
+}
+
+// BenchmarkOneRowOverGRPC measures one call of a single row through the
+// whole serving path over loopback TCP, beside a health check on the same
+// connection (the transport's floor): the request-id and default-deadline
+// interceptors, panic recovery, decoding, the cached model, encoding. The
+// client runs in the same process, so ns/op and allocs/op count both ends;
+// compare the two sub-benchmarks, not absolute times.
+func BenchmarkOneRowOverGRPC(b *testing.B) {
+	s, rows := benchModel(b)
+	lines, _ := runWith(b, Config{Store: s.store, DefaultTimeout: DefaultCallTimeout})
+	conn := dialWith(b, lines[ListeningPrefix], grpc.WithTransportCredentials(insecure.NewCredentials()))
+	c := mixdv1.NewMixtureServiceClient(conn)
+	h := healthpb.NewHealthClient(conn)
+	one := &mixdv1.Matrix{Rows: 1, Cols: rows.Cols, LittleEndian: rows.LittleEndian[:8*rows.Cols]}
+	ctx := context.Background()
+	b.Run("classify", func(b *testing.B) {
+		req := &mixdv1.ClassifyRequest{Model: "bench", Rows: one}
+		b.ReportAllocs()
+		for b.Loop() {
+			if _, err := c.Classify(ctx, req); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+	b.Run("health", func(b *testing.B) {
+		b.ReportAllocs()
+		for b.Loop() {
+			if _, err := h.Check(ctx, &healthpb.HealthCheckRequest{}); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
 }

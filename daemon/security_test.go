@@ -219,7 +219,7 @@ func newTestPKI(t *testing.T, dir, name string) *testPKI {
 // runWith runs Run with cfg (fakes for store and host unless set) and
 // returns the status lines printed up to and including the listening line,
 // keyed by prefix, and the reload channel.
-func runWith(t *testing.T, cfg Config) (lines map[string]string, reload chan struct{}) {
+func runWith(t testing.TB, cfg Config) (lines map[string]string, reload chan struct{}) {
 	t.Helper()
 	pr, pw := io.Pipe()
 	ctx, cancel := context.WithCancel(context.Background())
@@ -285,7 +285,7 @@ func (b bearer) GetRequestMetadata(context.Context, ...string) (map[string]strin
 }
 func (bearer) RequireTransportSecurity() bool { return false }
 
-func dialWith(t *testing.T, addr string, opts ...grpc.DialOption) *grpc.ClientConn {
+func dialWith(t testing.TB, addr string, opts ...grpc.DialOption) *grpc.ClientConn {
 	t.Helper()
 	conn, err := grpc.NewClient("passthrough:///"+addr, opts...)
 	if err != nil {
