@@ -145,3 +145,35 @@ def test_jobs_errors(client: mixd.Client) -> None:
     client.watch(job)
     with pytest.raises(mixd.FailedPrecondition, match="already ended"):
         client.cancel_job(job)
+
+
+class _FakeRpcError(grpc.RpcError):
+    """A grpc.RpcError with a fixed status, as a call would raise it."""
+
+    def __init__(self, code: grpc.StatusCode, details: str) -> None:
+        super().__init__(details)
+        self._code, self._details = code, details
+
+    def code(self) -> grpc.StatusCode:
+        return self._code
+
+    def details(self) -> str:
+        return self._details
+
+
+def test_reset_at_the_deadline_is_deadline_exceeded() -> None:
+    # A gRPC server ends a call at its deadline by resetting the stream; when
+    # the reset arrives before the client's own timer fires, the channel says
+    # CANCELLED. Past the call's deadline the client reports DEADLINE_EXCEEDED.
+    import time
+
+    from mixd.errors import from_rpc_error
+
+    reset = _FakeRpcError(grpc.StatusCode.CANCELLED, "Stream removed (RST_STREAM (Received RST_STREAM with error code 8))")
+    late = from_rpc_error(reset, timeout=0.5, started=time.monotonic() - 0.6)
+    assert isinstance(late, mixd.DeadlineExceeded) and "deadline of 0.5 s" in str(late)
+    # Before the deadline, or with no deadline, a cancellation stays one.
+    assert isinstance(from_rpc_error(reset, timeout=10, started=time.monotonic()), mixd.Cancelled)
+    assert isinstance(from_rpc_error(reset), mixd.Cancelled)
+    other = _FakeRpcError(grpc.StatusCode.UNAVAILABLE, "gone")
+    assert isinstance(from_rpc_error(other, timeout=0.5, started=time.monotonic() - 9), mixd.Unavailable)

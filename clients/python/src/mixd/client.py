@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import os
 import threading
+import time
 from typing import (
     Any,
     Callable,
@@ -264,10 +265,11 @@ class Client:
         return None if streaming else self._timeout
 
     def _unary(self, method: Callable[..., _T], request: Any, timeout: Optional[float]) -> _T:
+        dl, t0 = self._deadline(timeout), time.monotonic()
         try:
-            return method(request, timeout=self._deadline(timeout), metadata=self._metadata)
+            return method(request, timeout=dl, metadata=self._metadata)
         except grpc.RpcError as e:
-            raise from_rpc_error(e) from None
+            raise from_rpc_error(e, timeout=dl, started=t0) from None
 
     def _rows_per_chunk(self, bytes_per_row: int) -> int:
         return max(1, self._chunk_bytes // max(1, bytes_per_row))
@@ -408,16 +410,17 @@ class Client:
                 else:
                     yield message(rows=m, observed_mask=om)
 
-        call = method(requests(), timeout=self._deadline(timeout, True), metadata=self._metadata)
-        self._drain(call, out, start)
+        dl, t0 = self._deadline(timeout, True), time.monotonic()
+        call = method(requests(), timeout=dl, metadata=self._metadata)
+        self._drain(call, out, start, dl, t0)
 
-    def _drain(self, call: Any, out: Any, start: int) -> None:
+    def _drain(self, call: Any, out: Any, start: int, timeout: Optional[float], started: float) -> None:
         offset = start
         try:
             for resp in call:
                 offset += out.add(resp, offset)
         except grpc.RpcError as e:
-            raise from_rpc_error(e) from None
+            raise from_rpc_error(e, timeout=timeout, started=started) from None
         except BaseException:
             call.cancel()
             raise
@@ -560,7 +563,8 @@ class Client:
             _matrix.decode_labels_into(resp.components, comp, "components")
             return SampleResult(resp.model, int(resp.version), rows, comp)
         req = svc.SampleStreamRequest(model=name, version=ver, count=count, seed=seed, response_encoding=_LE)
-        call = self._stub.SampleStream(req, timeout=self._deadline(timeout, True), metadata=self._metadata)
+        dl, t0 = self._deadline(timeout, True), time.monotonic()
+        call = self._stub.SampleStream(req, timeout=dl, metadata=self._metadata)
         rows_out: Optional[np.ndarray] = None
         comp = np.empty(count, dtype=np.int32)
         offset = 0
@@ -577,7 +581,7 @@ class Client:
                 _matrix.decode_labels_into(resp.components, comp[offset : offset + m], "components")
                 offset += m
         except grpc.RpcError as e:
-            raise from_rpc_error(e) from None
+            raise from_rpc_error(e, timeout=dl, started=t0) from None
         except BaseException:
             call.cancel()
             raise
@@ -952,14 +956,17 @@ class Client:
             for i, c in enumerate(chunks):
                 yield svc.FitRequest(spec=spec, chunk=c) if i == 0 else svc.FitRequest(chunk=c)
 
-        call = self._stub.Fit(requests(), timeout=self._deadline(timeout, True), metadata=self._metadata)
-        return self._follow(call, on_progress, cancel)
+        dl, t0 = self._deadline(timeout, True), time.monotonic()
+        call = self._stub.Fit(requests(), timeout=dl, metadata=self._metadata)
+        return self._follow(call, on_progress, cancel, dl, t0)
 
     def _follow(
         self,
         call: Any,
         on_progress: Optional[Callable[[FitProgress], None]],
         cancel: Optional[threading.Event],
+        timeout: Optional[float],
+        started: float,
     ) -> Model:
         """Reads a Fit or WatchFitJob event stream until the model arrives."""
         canceller = _Canceller(call, cancel)
@@ -977,7 +984,7 @@ class Client:
         except grpc.RpcError as e:
             if canceller.fired:
                 raise error_for_code(grpc.StatusCode.CANCELLED, "the call was cancelled by the caller (cancel event set)") from None
-            raise from_rpc_error(e) from None
+            raise from_rpc_error(e, timeout=timeout, started=started) from None
         except BaseException:
             call.cancel()
             raise
@@ -1032,12 +1039,11 @@ class Client:
             for i, c in enumerate(chunks):
                 yield svc.CreateFitJobRequest(spec=spec, chunk=c) if i == 0 else svc.CreateFitJobRequest(chunk=c)
 
+        dl, t0 = self._deadline(timeout, True), time.monotonic()
         try:
-            resp = self._stub.CreateFitJob(
-                requests(), timeout=self._deadline(timeout, True), metadata=self._metadata
-            )
+            resp = self._stub.CreateFitJob(requests(), timeout=dl, metadata=self._metadata)
         except grpc.RpcError as e:
-            raise from_rpc_error(e) from None
+            raise from_rpc_error(e, timeout=dl, started=t0) from None
         return FitJob.from_proto(resp.job)
 
     def watch(
@@ -1059,8 +1065,9 @@ class Client:
             failed or was cancelled.
         """
         req = svc.WatchFitJobRequest(name=_job_name(job))
-        call = self._stub.WatchFitJob(req, timeout=self._deadline(timeout, True), metadata=self._metadata)
-        return self._follow(call, on_progress, cancel)
+        dl, t0 = self._deadline(timeout, True), time.monotonic()
+        call = self._stub.WatchFitJob(req, timeout=dl, metadata=self._metadata)
+        return self._follow(call, on_progress, cancel, dl, t0)
 
     def get_job(self, job: JobRef, *, timeout: Optional[float] = None) -> FitJob:
         """Returns the current state of a fit job.

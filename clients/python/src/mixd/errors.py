@@ -10,7 +10,8 @@ one hierarchy.
 
 from __future__ import annotations
 
-from typing import Dict, Type
+import time
+from typing import Dict, Optional, Type
 
 import grpc
 
@@ -145,13 +146,33 @@ def _from_number(number: int, message: str) -> MixdError:
     return error_for_code(code, message)
 
 
-def from_rpc_error(err: grpc.RpcError) -> MixdError:
+def from_rpc_error(
+    err: grpc.RpcError, *, timeout: Optional[float] = None, started: Optional[float] = None
+) -> MixdError:
     """Translates a grpc.RpcError raised by a call of the generated stub
-    (see :attr:`mixd.Client.stub`) into the matching :class:`MixdError`."""
+    (see :attr:`mixd.Client.stub`) into the matching :class:`MixdError`.
+
+    Give the call's ``timeout`` (seconds) and the ``time.monotonic()`` at
+    which it ``started`` to report a call that ran out of time as
+    :class:`DeadlineExceeded` even when it arrives as CANCELLED: a gRPC
+    server ends a call at its deadline by resetting the stream, and when that
+    reset reaches the client before the client's own timer fires (a busy
+    client process), the channel reports CANCELLED.
+    """
     code = err.code() if hasattr(err, "code") else None
     details = err.details() if hasattr(err, "details") else None
     if not isinstance(code, grpc.StatusCode):
         code = grpc.StatusCode.UNKNOWN
+    if (
+        code == grpc.StatusCode.CANCELLED
+        and timeout is not None
+        and started is not None
+        and time.monotonic() - started >= timeout
+    ):
+        return error_for_code(
+            grpc.StatusCode.DEADLINE_EXCEEDED,
+            f"the call's deadline of {timeout:g} s passed (the daemon ended it: {details or err})",
+        )
     return error_for_code(code, details or str(err))
 
 
