@@ -139,7 +139,7 @@ func resolve(_ fitters.Data, s fitters.Settings, p *problem) (*config, error) {
 		case OptWishartDOF:
 			cfg.nu0, err = settings.Number(name, val)
 			if err == nil {
-				if cfg.Structure == mixture.Full && !(cfg.nu0 > float64(d-1)) {
+				if matrixPrecision(cfg.Structure) && !(cfg.nu0 > float64(d-1)) {
 					err = invalid("option %q: value %q must exceed %d (the number of columns minus 1)", name, val, d-1)
 				} else if !(cfg.nu0 > 0) {
 					err = invalid("option %q: value %q must be positive", name, val)
@@ -174,12 +174,15 @@ func resolve(_ fitters.Data, s fitters.Settings, p *problem) (*config, error) {
 	}
 	if cfg.served == "" {
 		cfg.served = ServePredictive
-		if cfg.Structure == mixture.Diagonal {
+		if cfg.Structure == mixture.Diagonal || cfg.Structure == mixture.Tied {
 			cfg.served = ServePlugin
 		}
 	} else if cfg.served == ServePredictive && cfg.Structure == mixture.Diagonal {
 		return nil, fitters.Errorf(fitters.Unimplemented,
 			"the predictive model of a diagonal structure is a product of univariate student_t densities, not a multivariate student_t mixture: with the diagonal structure use family gaussian or option %s=%s, or use the full or spherical structure", OptServedModel, ServePlugin)
+	} else if cfg.served == ServePredictive && cfg.Structure == mixture.Tied {
+		return nil, fitters.Errorf(fitters.Unimplemented,
+			"the predictive model of a tied structure has a different scale matrix per component ((1+β_k)/β_k times the shared one), so it is not a tied student_t mixture: with the tied structure use family gaussian or option %s=%s, or use the full structure", OptServedModel, ServePlugin)
 	}
 	if cfg.minRows == 0 {
 		cfg.minRows = float64(d + 1)
@@ -206,7 +209,7 @@ func resolve(_ fitters.Data, s fitters.Settings, p *problem) (*config, error) {
 func (c *config) parseInverseScale(name, val string, d int) error {
 	var err error
 	switch c.Structure {
-	case mixture.Full:
+	case mixture.Full, mixture.Tied:
 		c.s0, err = parseList(name, val, d*d, fmt.Sprintf("%d (a %dx%d matrix, row-major)", d*d, d, d))
 		if err == nil {
 			if e := mixture.CheckCovariance(c.s0, d); e != nil {
@@ -222,10 +225,10 @@ func (c *config) parseInverseScale(name, val string, d int) error {
 		return err
 	}
 	for i, v := range c.s0 {
-		if c.Structure != mixture.Full && !(v > 0) {
+		if !matrixPrecision(c.Structure) && !(v > 0) {
 			return invalid("option %q: value %d (%v) must be positive", name, i, v)
 		}
-		if a := math.Abs(v); a > MaxInverseScale || (a < MinInverseScale && (c.Structure != mixture.Full || i%(d+1) == 0)) {
+		if a := math.Abs(v); a > MaxInverseScale || (a < MinInverseScale && (!matrixPrecision(c.Structure) || i%(d+1) == 0)) {
 			return invalid("option %q: value %d (%v) is outside the supported magnitudes [%g, %g]", name, i, v, MinInverseScale, MaxInverseScale)
 		}
 	}
@@ -240,7 +243,7 @@ func (c *config) defaultInverseScale(p *problem) error {
 	if c.s0 == nil {
 		c.s0Text = "data covariance"
 		switch c.Structure {
-		case mixture.Full:
+		case mixture.Full, mixture.Tied:
 			c.s0 = append([]float64(nil), p.cov...)
 		case mixture.Diagonal:
 			c.s0 = make([]float64, d)
@@ -259,7 +262,7 @@ func (c *config) defaultInverseScale(p *problem) error {
 	}
 	if c.ridge > 0 {
 		switch c.Structure {
-		case mixture.Full:
+		case mixture.Full, mixture.Tied:
 			for j := 0; j < d; j++ {
 				c.s0[j*d+j] += c.ridge
 			}
@@ -270,7 +273,7 @@ func (c *config) defaultInverseScale(p *problem) error {
 		}
 		c.s0Text += fmt.Sprintf(" + ridge %s", fmtFloat(c.ridge))
 	}
-	if c.Structure == mixture.Full {
+	if matrixPrecision(c.Structure) {
 		if err := mixture.CheckCovariance(c.s0, d); err != nil {
 			return fitters.Errorf(fitters.FailedPrecondition,
 				"prior: the Wishart inverse scale (%s) is unusable: %v; the features are (nearly) linearly dependent: drop a redundant column, use a positive ridge or set option %q", c.s0Text, err, OptInverseScale)

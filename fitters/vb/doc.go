@@ -30,7 +30,12 @@
 //   - spherical structure: Λ_k = λ_k I with λ_k ~ Gamma(Dν0/2, rate D s0/2),
 //     i.e. ν0 prior degrees of freedom per coordinate; default s0: the mean
 //     data variance. In one dimension all three structures are the same model.
-//   - tied covariances are not supported (Unimplemented).
+//   - tied structure: one precision matrix Λ ~ Wishart(W0, ν0) shared by all
+//     components, μ_k | Λ ~ N(m0, (β0 Λ)⁻¹), with the full structure's
+//     options and defaults. Its posterior is one Wishart with ν = ν0 + Σ_k N_k
+//     and W⁻¹ = W0⁻¹ + Σ_k [N_k S_k + (β0 N_k/β_k)(x̄_k − m0)(x̄_k − m0)ᵀ]
+//     (the full structure's update summed over components), and the bound
+//     counts the Wishart's prior and entropy terms once.
 //
 // Settings.Ridge, when positive, is added to the diagonal of the prior
 // inverse scale (so it widens the prior and keeps the updates exact); the
@@ -93,10 +98,12 @@
 //     with a_k, b_k the gamma shape and rate. It integrates over the
 //     parameters' uncertainty, so nearly empty components have broad, heavy
 //     tails.
-//   - plugin (default, and the only choice, for diagonal: there the predictive
-//     is a product of univariate Student-t densities, not a multivariate one):
+//   - plugin (default, and the only choice, for diagonal and tied: for
+//     diagonal the predictive is a product of univariate Student-t densities,
+//     not a multivariate one; for tied its scale matrices differ between
+//     components by the factor (1+β_k)/β_k, so it is not a tied mixture):
 //     a Gaussian mixture with weights E[π_k], means m_k and covariances
-//     E[Λ_k]⁻¹ = W_k⁻¹/ν_k.
+//     E[Λ_k]⁻¹ = W_k⁻¹/ν_k (for tied, the one shared W⁻¹/ν).
 //
 // Components whose expected weight is below MinServedWeight (1e-10) are left
 // out of the served model and the other weights renormalised (noted in the

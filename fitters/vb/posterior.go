@@ -59,7 +59,7 @@ type prior struct {
 // setup fills the derived fields; it fails when s0 is not positive definite.
 func (pr *prior) setup(s mixture.Structure, d int) bool {
 	switch s {
-	case mixture.Full:
+	case mixture.Full, mixture.Tied:
 		l := make([]float64, d*d)
 		ld, ok := cholesky(pr.s0, l, d)
 		if !ok {
@@ -102,6 +102,8 @@ type posterior struct {
 	m      []float64 // K×D means m_k
 
 	// Full: Wishart(W_k, ν_k); winv holds W_k⁻¹, chol its lower factor.
+	// Tied: one Wishart(W, ν) shared by every component, at index 0 of
+	// each of these (see wishart).
 	nu      []float64
 	winv    []float64
 	chol    []float64
@@ -132,12 +134,16 @@ func newPosterior(k, d int, s mixture.Structure, wp weightPrior) *posterior {
 		q.gamma2 = make([]float64, k)
 	}
 	switch s {
-	case mixture.Full:
-		q.nu = make([]float64, k)
-		q.winv = make([]float64, k*d*d)
-		q.chol = make([]float64, k*d*d)
-		q.white = make([]float64, k*d*d)
-		q.logDetW = make([]float64, k)
+	case mixture.Full, mixture.Tied:
+		nw := k
+		if s == mixture.Tied {
+			nw = 1
+		}
+		q.nu = make([]float64, nw)
+		q.winv = make([]float64, nw*d*d)
+		q.chol = make([]float64, nw*d*d)
+		q.white = make([]float64, nw*d*d)
+		q.logDetW = make([]float64, nw)
 	case mixture.Diagonal:
 		q.nblk = d
 	case mixture.Spherical:
@@ -149,6 +155,21 @@ func newPosterior(k, d int, s mixture.Structure, wp weightPrior) *posterior {
 		q.eprec = make([]float64, k*q.nblk)
 	}
 	return q
+}
+
+// matrixPrecision reports whether s keeps Wishart precision matrices (full
+// and tied) rather than gamma-distributed precisions per block.
+func matrixPrecision(s mixture.Structure) bool {
+	return s == mixture.Full || s == mixture.Tied
+}
+
+// wishart returns the index of component c's Wishart factor in nu, winv,
+// chol, white and logDetW: c, or 0 for the tied structure.
+func (q *posterior) wishart(c int) int {
+	if q.structure == mixture.Tied {
+		return 0
+	}
+	return c
 }
 
 // block returns the precision block of coordinate j.
@@ -164,7 +185,7 @@ type stats struct {
 	nk    []float64 // N_k = Σ w r_nk
 	sx    []float64 // K×D: Σ w r_nk x_n
 	xbar  []float64 // K×D: sx/N_k (the prior mean when N_k is 0)
-	scat  []float64 // full: K×D×D Σ w r (x−x̄)(x−x̄)ᵀ; otherwise K×D squared deviations
+	scat  []float64 // full, tied: K×D×D Σ w r (x−x̄)(x−x̄)ᵀ; otherwise K×D squared deviations
 	rlogr float64   // Σ w Σ r log r
 }
 
@@ -192,7 +213,7 @@ type engine struct {
 }
 
 func (e *engine) scatLen() int {
-	if e.s == mixture.Full {
+	if matrixPrecision(e.s) {
 		return e.d * e.d
 	}
 	return e.d
@@ -218,7 +239,7 @@ func newEngine(p *problem, pr *prior, s mixture.Structure, k int) *engine {
 
 func newStats(k, d int, s mixture.Structure) *stats {
 	sl := d
-	if s == mixture.Full {
+	if matrixPrecision(s) {
 		sl = d * d
 	}
 	return &stats{
@@ -246,7 +267,7 @@ func (e *engine) parallel(fn func(ws *scratch, c, lo, hi int)) {
 func (e *engine) estep(q *posterior, st *stats) error {
 	k, d := e.k, e.d
 	sl := e.scatLen()
-	full := e.s == mixture.Full
+	full := matrixPrecision(e.s)
 	stride := k + k*d + 1 + k*sl
 	for _, ws := range e.ws {
 		ws.bad = 0
@@ -266,7 +287,8 @@ func (e *engine) estep(q *posterior, st *stats) error {
 				}
 				var qf float64
 				if q.nblk == 0 {
-					qf = q.nu[c] * whitenNorm2(q.white[c*d*d:(c+1)*d*d], diff, d)
+					wc := q.wishart(c)
+					qf = q.nu[wc] * whitenNorm2(q.white[wc*d*d:(wc+1)*d*d], diff, d)
 				} else {
 					pr := q.eprec[c*q.nblk : (c+1)*q.nblk]
 					for j, v := range diff {
@@ -471,7 +493,7 @@ func (e *engine) finish(st *stats) {
 		}
 	}
 	sl := e.scatLen()
-	full := e.s == mixture.Full
+	full := matrixPrecision(e.s)
 	e.parallel(func(ws *scratch, ch, lo, hi int) {
 		sb := e.scatBuf[ch*k*sl : (ch+1)*k*sl]
 		clear(sb)
@@ -567,6 +589,17 @@ func (e *engine) mstep(st *stats, q *posterior) error {
 		}
 	}
 	// Means and precisions.
+	if e.s == mixture.Tied {
+		// One Wishart for all components (Bishop 2006, eqs. 10.62–10.63
+		// with the precision shared): ν = ν0 + Σ_k N_k, and W⁻¹ = W0⁻¹ plus
+		// every component's scatter and mean-shrinkage terms, added below.
+		var total float64
+		for c := 0; c < k; c++ {
+			total += st.nk[c]
+		}
+		q.nu[0] = pr.nu0 + total
+		copy(q.winv[:d*d], pr.s0)
+	}
 	for c := 0; c < k; c++ {
 		n := st.nk[c]
 		q.beta[c] = pr.beta0 + n
@@ -596,6 +629,17 @@ func (e *engine) mstep(st *stats, q *posterior) error {
 			q.logDetW[c] = -ld
 			inverseLower(q.chol[c*d*d:(c+1)*d*d], q.white[c*d*d:(c+1)*d*d], d)
 			q.elogdet[c] = expectLogDetWishart(q.logDetW[c], q.nu[c], d)
+		case mixture.Tied:
+			wi := q.winv[:d*d]
+			sc := st.scat[c*d*d : (c+1)*d*d]
+			for a := 0; a < d; a++ {
+				da := xb[a] - pr.m0[a]
+				for b := 0; b <= a; b++ {
+					v := wi[a*d+b] + sc[a*d+b] + shrink*da*(xb[b]-pr.m0[b])
+					wi[a*d+b] = v
+					wi[b*d+a] = v
+				}
+			}
 		default:
 			sc := st.scat[c*d : (c+1)*d]
 			q.a[c] = pr.a0 + 0.5*pr.dg*n
@@ -613,6 +657,20 @@ func (e *engine) mstep(st *stats, q *posterior) error {
 			}
 			q.elogdet[c] = el
 		}
+	}
+	if e.s == mixture.Tied {
+		ld, ok := cholesky(q.winv[:d*d], q.chol[:d*d], d)
+		if !ok {
+			return fitters.Errorf(fitters.FailedPrecondition, "the shared posterior inverse scale matrix is numerically singular: the prior (options %q, %q, %q) is too far from the data or too ill-conditioned", OptPriorMean, OptMeanStrength, OptInverseScale)
+		}
+		q.logDetW[0] = -ld
+		inverseLower(q.chol[:d*d], q.white[:d*d], d)
+		el := expectLogDetWishart(q.logDetW[0], q.nu[0], d)
+		for c := 0; c < k; c++ {
+			q.elogdet[c] = el
+		}
+	}
+	for c := 0; c < k; c++ {
 		q.econst[c] = q.elogpi[c] + 0.5*q.elogdet[c] - 0.5*float64(d)*log2Pi - 0.5*float64(d)/q.beta[c]
 	}
 	return nil
@@ -656,6 +714,18 @@ func (e *engine) bound(st *stats, q *posterior, wsScratch []float64) float64 {
 	tmp := wsScratch[d*d : 2*d*d]
 	v := wsScratch[2*d*d : 2*d*d+d]
 	y := wsScratch[2*d*d+d : 2*d*d+2*d]
+	if e.s == mixture.Tied {
+		// The shared Wishart's terms, once: E[log p(Λ)] − E[log q(Λ)]
+		// (B.79, B.82); the per-component terms follow in the loop.
+		nu, lnL := q.nu[0], q.elogdet[0]
+		inverseFromCholesky(q.chol[:d*d], w, tmp, d)
+		var trS0W float64
+		for i, wv := range w {
+			trS0W += pr.s0[i] * wv
+		}
+		h := -logWishartB(q.logDetW[0], nu, d) - 0.5*(nu-fd-1)*lnL + 0.5*nu*fd
+		l += pr.lnB0 + 0.5*(pr.nu0-fd-1)*lnL - 0.5*nu*trS0W + h
+	}
 	for c := 0; c < k; c++ {
 		n, beta := st.nk[c], q.beta[c]
 		xb := st.xbar[c*d : (c+1)*d]
@@ -671,14 +741,7 @@ func (e *engine) bound(st *stats, q *posterior, wsScratch []float64) float64 {
 				trSW += sc[i] * wv
 				trS0W += pr.s0[i] * wv
 			}
-			for j := range v {
-				v[j] = xb[j] - mc[j]
-			}
-			qx := solveNorm2(chol, v, y, d)
-			for j := range v {
-				v[j] = mc[j] - pr.m0[j]
-			}
-			qm := solveNorm2(chol, v, y, d)
+			qx, qm := wishartQuadratics(chol, xb, mc, pr.m0, v, y)
 			// E[log p(X|Z,μ,Λ)], eq. 10.71.
 			l += 0.5 * (n*(lnL-fd/beta-fd*log2Pi) - nu*(trSW+n*qx))
 			// E[log p(μ,Λ)], eq. 10.74.
@@ -687,6 +750,19 @@ func (e *engine) bound(st *stats, q *posterior, wsScratch []float64) float64 {
 			// −E[log q(μ,Λ)], eq. 10.77 with the Wishart entropy B.82.
 			h := -logWishartB(q.logDetW[c], nu, d) - 0.5*(nu-fd-1)*lnL + 0.5*nu*fd
 			l -= 0.5*lnL + 0.5*fd*(math.Log(beta)-log2Pi) - 0.5*fd - h
+		case mixture.Tied:
+			// w holds the shared W (computed above).
+			nu, lnL := q.nu[0], q.elogdet[0]
+			chol := q.chol[:d*d]
+			var trSW float64
+			for i, wv := range w {
+				trSW += st.scat[c*d*d+i] * wv
+			}
+			qx, qm := wishartQuadratics(chol, xb, mc, pr.m0, v, y)
+			// E[log p(X_k|Z,μ_k,Λ)], E[log p(μ_k|Λ)] and −E[log q(μ_k|Λ)].
+			l += 0.5 * (n*(lnL-fd/beta-fd*log2Pi) - nu*(trSW+n*qx))
+			l += 0.5 * (fd*(math.Log(pr.beta0)-log2Pi) + lnL - fd*pr.beta0/beta - pr.beta0*nu*qm)
+			l -= 0.5*lnL + 0.5*fd*(math.Log(beta)-log2Pi) - 0.5*fd
 		default:
 			a := q.a[c]
 			dpa := digamma(a)
@@ -717,4 +793,20 @@ func (e *engine) bound(st *stats, q *posterior, wsScratch []float64) float64 {
 		}
 	}
 	return l
+}
+
+// wishartQuadratics returns (x̄ − m)ᵀ W (x̄ − m) and (m − m0)ᵀ W (m − m0)
+// for the Wishart scale W whose inverse has the lower Cholesky factor chol;
+// v and y are scratch of the dimension's length.
+func wishartQuadratics(chol, xb, m, m0, v, y []float64) (qx, qm float64) {
+	d := len(v)
+	for j := range v {
+		v[j] = xb[j] - m[j]
+	}
+	qx = solveNorm2(chol, v, y, d)
+	for j := range v {
+		v[j] = m[j] - m0[j]
+	}
+	qm = solveNorm2(chol, v, y, d)
+	return qx, qm
 }

@@ -44,7 +44,7 @@ func TestBoundNeverDecreases(t *testing.T) {
 		s    fitters.Settings
 	}
 	var cases []tc
-	for _, st := range []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical} {
+	for _, st := range []mixture.Structure{mixture.Full, mixture.Tied, mixture.Diagonal, mixture.Spherical} {
 		for _, wp := range []string{"dirichlet", "stick_breaking"} {
 			opts := map[string]string{OptWeightPrior: wp, OptServedModel: ServePlugin}
 			cases = append(cases,
@@ -98,7 +98,7 @@ func TestBoundNeverDecreases(t *testing.T) {
 // update (from the starting responsibilities) in the sequence.
 func TestBoundNeverDecreasesFromStart(t *testing.T) {
 	data, _ := generate(900, 11, threeBlobs)
-	for _, st := range []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical} {
+	for _, st := range []mixture.Structure{mixture.Full, mixture.Tied, mixture.Diagonal, mixture.Spherical} {
 		p, err := newProblem(data)
 		if err != nil {
 			t.Fatal(err)
@@ -339,21 +339,21 @@ func TestPredictiveIntegratesToOne(t *testing.T) {
 func TestWeakPriorApproachesEM(t *testing.T) {
 	ctx := context.Background()
 	data, truth := generate(20000, 41, threeBlobs)
-	for _, st := range []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical} {
+	for _, st := range []mixture.Structure{mixture.Full, mixture.Tied, mixture.Diagonal, mixture.Spherical} {
 		t.Run(st.String(), func(t *testing.T) {
 			ref, err := em.New().Fit(ctx, data, fitters.Settings{Structure: st, Labels: truth, Tolerance: 1e-12, Ridge: 0}, nil)
 			if err != nil {
 				t.Fatal(err)
 			}
 			is := "1e-6,0,0,1e-6"
-			if st != mixture.Full {
+			if !matrixPrecision(st) {
 				is = "1e-6,1e-6"
 				if st == mixture.Spherical {
 					is = "1e-6"
 				}
 			}
 			dof := "1.000001"
-			if st != mixture.Full {
+			if !matrixPrecision(st) {
 				dof = "1e-6"
 			}
 			res, err := New().Fit(ctx, data, fitters.Settings{Structure: st, Labels: truth, Tolerance: 1e-13,

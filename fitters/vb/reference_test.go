@@ -138,13 +138,18 @@ func TestFaithfulMatchesScikitLearn(t *testing.T) {
 // equals the log marginal likelihood. Reference: the evidence computed with
 // scipy.stats densities through log p(X) = log p(X|θ) + log p(θ) − log p(θ|X)
 // (testdata/vb/make_reference.py, scipy 1.17.1), for each structure, with the
-// default data-scaled priors.
+// default data-scaled priors. With one component the tied structure is the
+// full one, so it must reach the full structure's evidence.
 func TestBoundEqualsEvidenceForOneComponent(t *testing.T) {
 	ref := loadReference(t)
 	data := testkit.Faithful(t)
-	for _, s := range []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical} {
+	for _, s := range []mixture.Structure{mixture.Full, mixture.Tied, mixture.Diagonal, mixture.Spherical} {
 		for _, wp := range []string{"dirichlet", "stick_breaking"} {
-			want, ok := ref.EvidenceK1[s.String()]
+			same := s
+			if s == mixture.Tied {
+				same = mixture.Full // one component: the same model
+			}
+			want, ok := ref.EvidenceK1[same.String()]
 			if !ok {
 				t.Fatalf("no reference for %s", s)
 			}
@@ -159,5 +164,70 @@ func TestBoundEqualsEvidenceForOneComponent(t *testing.T) {
 				t.Errorf("%s/%s: bound %.15g, want evidence %.15g", s, wp, res.Report.Bound, want)
 			}
 		}
+	}
+}
+
+// TestTiedBoundEqualsLabelledEvidence checks the tied structure against an
+// exact value for K = 3. Reference: testdata/vb/make_tied_reference.py
+// (numpy and scipy 1.17.1; values in testdata/vb/tied_reference.json) draws
+// three groups 300 units apart and computes log p(X, Z) of the tied
+// Normal-Wishart model for the true labels with scipy.stats densities and
+// scipy.special.gammaln. The groups are so far apart that the variational
+// responsibilities are exactly the labels, and the variational distribution
+// is then the exact posterior given them, so the bound must equal log p(X, Z)
+// and the posterior and the served plug-in model must equal the conjugate
+// update the script computes.
+func TestTiedBoundEqualsLabelledEvidence(t *testing.T) {
+	b, err := os.ReadFile(filepath.Join("..", "..", "testdata", "vb", "tied_reference.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ref struct {
+		Rows            [][]float64       `json:"rows"`
+		Labels          []int             `json:"labels"`
+		Options         map[string]string `json:"options"`
+		LogPXZ          float64           `json:"log_p_x_and_z"`
+		DOF             float64           `json:"dof"`
+		InverseScale    []float64         `json:"inverse_scale"`
+		Means           [][]float64       `json:"means"`
+		ExpectedWeights []float64         `json:"expected_weights"`
+	}
+	if err := json.Unmarshal(b, &ref); err != nil {
+		t.Fatal(err)
+	}
+	data := fitters.Data{Rows: len(ref.Rows), Cols: 2}
+	for _, r := range ref.Rows {
+		data.Values = append(data.Values, r...)
+	}
+	opts := map[string]string{OptServedModel: ServePlugin}
+	for k, v := range ref.Options {
+		opts[k] = v
+	}
+	res, post, err := New().FitPosterior(context.Background(), data, fitters.Settings{
+		Components: 3, Structure: mixture.Tied, Labels: ref.Labels, MaxIterations: 5, Options: opts,
+	}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	const tol = 1e-10
+	if !relClose(res.Report.Bound, ref.LogPXZ, tol, math.Abs(ref.LogPXZ)) {
+		t.Errorf("bound %.15g, want log p(X, Z) %.15g", res.Report.Bound, ref.LogPXZ)
+	}
+	checkVec(t, "expected weights", post.ExpectedWeights, ref.ExpectedWeights, tol)
+	for k := range ref.Means {
+		checkVec(t, "dof", []float64{post.DOF[k]}, []float64{ref.DOF}, tol)
+		checkVec(t, "inverse scale", post.InverseScale[k], ref.InverseScale, tol)
+		checkVec(t, "mean", post.Means[k], ref.Means[k], tol)
+	}
+	if res.Params.Structure != mixture.Tied || len(res.Params.Components) != 3 {
+		t.Fatalf("served %s model with %d components", res.Params.Structure, len(res.Params.Components))
+	}
+	want := make([]float64, 4)
+	for i, v := range ref.InverseScale {
+		want[i] = v / ref.DOF
+	}
+	for k, c := range res.Params.Components {
+		checkVec(t, "served covariance", c.Cov, want, tol)
+		checkVec(t, "served mean", c.Mean, ref.Means[k], tol)
 	}
 }

@@ -75,7 +75,7 @@ func New() *Fitter { return &Fitter{} }
 func method() settings.Method {
 	return settings.Method{
 		Name:       Name,
-		Structures: []mixture.Structure{mixture.Full, mixture.Diagonal, mixture.Spherical},
+		Structures: []mixture.Structure{mixture.Full, mixture.Tied, mixture.Diagonal, mixture.Spherical},
 		Defaults:   settings.Defaults{MaxIterations: DefaultMaxIterations, Tolerance: DefaultTolerance, Restarts: DefaultRestarts},
 		Style:      settings.Plain,
 	}
@@ -95,9 +95,9 @@ func (f *Fitter) Describe(ctx context.Context) (fitters.Info, error) {
 			{Name: OptConcentration, Description: "concentration of the weight prior (a positive number); small values favour few components", Default: "1/K for dirichlet, 1 for stick_breaking"},
 			{Name: OptMeanStrength, Description: "strength of the prior on each mean, in rows (a positive number)", Default: "1"},
 			{Name: OptPriorMean, Description: "prior mean of every component: one comma-separated value per column", Default: "the (weighted) data mean"},
-			{Name: OptWishartDOF, Description: "degrees of freedom of the Wishart prior on each precision (full: more than D-1; diagonal, spherical: positive)", Default: "D, the number of columns"},
-			{Name: OptInverseScale, Description: "inverse scale matrix of the Wishart prior: D*D comma-separated values, row-major (full), D values (diagonal) or 1 value (spherical); the ridge is added to its diagonal", Default: "the data covariance (divisor n-1); diagonal: the data variances; spherical: their mean"},
-			{Name: OptServedModel, Description: "model stored and served: predictive (posterior predictive Student-t mixture) or plugin (Gaussian mixture at the expected precisions); a requested family (student_t or gaussian) chooses the same way", Default: "from the family if given; otherwise predictive for full and spherical, plugin for diagonal"},
+			{Name: OptWishartDOF, Description: "degrees of freedom of the Wishart prior on each precision (full, tied: more than D-1; diagonal, spherical: positive)", Default: "D, the number of columns"},
+			{Name: OptInverseScale, Description: "inverse scale matrix of the Wishart prior: D*D comma-separated values, row-major (full, tied), D values (diagonal) or 1 value (spherical); the ridge is added to its diagonal", Default: "the data covariance (divisor n-1); diagonal: the data variances; spherical: their mean"},
+			{Name: OptServedModel, Description: "model stored and served: predictive (posterior predictive Student-t mixture) or plugin (Gaussian mixture at the expected precisions); a requested family (student_t or gaussian) chooses the same way", Default: "from the family if given; otherwise predictive for full and spherical, plugin for tied and diagonal"},
 			{Name: OptMinRows, Description: "expected row count from which a component counts as effective (a positive number)", Default: "D+1"},
 		},
 	})
@@ -109,7 +109,9 @@ func (f *Fitter) Describe(ctx context.Context) (fitters.Info, error) {
 // each coordinate j has its own one-dimensional Wishart (a gamma
 // distribution) with ν_k degrees of freedom and inverse scale InverseScale[k][j];
 // for the spherical one, Λ_k = λ_k I with λ_k ~ Gamma(Dν_k/2, D·InverseScale[k][0]/2)
-// (shape, rate).
+// (shape, rate). For the tied structure one Wishart(W, ν) is shared by
+// every component (μ_k | Λ ~ N(m_k, (β_k Λ)⁻¹)): each entry of DOF and of
+// InverseScale holds that one distribution.
 type Posterior struct {
 	Structure mixture.Structure
 	// WeightPrior is "dirichlet" or "stick_breaking".
@@ -347,6 +349,11 @@ func (p *problem) serve(cfg *config, k int, run *runResult) (*kResult, error) {
 			for i, v := range wi {
 				comp.Cov[i] = f * v
 			}
+		case mixture.Tied:
+			// Plug-in only: E[Λ]⁻¹ = (ν W)⁻¹, the same for every component.
+			for i, v := range q.winv[:d*d] {
+				comp.Cov[i] = v / q.nu[0]
+			}
 		case mixture.Diagonal:
 			// Plug-in only: E[λ_j]⁻¹ = b_j/a.
 			for j := 0; j < d; j++ {
@@ -448,9 +455,10 @@ func (r *runResult) export(d int, cfg *config) *Posterior {
 	for c := 0; c < k; c++ {
 		out.Means[c] = append([]float64(nil), q.m[c*d:(c+1)*d]...)
 		switch q.structure {
-		case mixture.Full:
-			out.DOF[c] = q.nu[c]
-			out.InverseScale[c] = append([]float64(nil), q.winv[c*d*d:(c+1)*d*d]...)
+		case mixture.Full, mixture.Tied:
+			wc := q.wishart(c)
+			out.DOF[c] = q.nu[wc]
+			out.InverseScale[c] = append([]float64(nil), q.winv[wc*d*d:(wc+1)*d*d]...)
 		case mixture.Diagonal:
 			out.DOF[c] = 2 * q.a[c]
 			out.InverseScale[c] = make([]float64, d)
