@@ -2,14 +2,19 @@ package daemon
 
 import (
 	"context"
+	"encoding/hex"
 	"io"
+	"net"
 	"net/http"
 	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
+	"sync"
 	"testing"
+	"time"
 
+	coltracepb "go.opentelemetry.io/proto/otlp/collector/trace/v1"
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
@@ -203,5 +208,108 @@ func TestTraceFile(t *testing.T) {
 	s := string(b)
 	if !strings.Contains(s, `"Name":"mixd.v1.MixtureService/ListModels"`) || !strings.Contains(s, "4bf92f3577b34da6a3ce929d0e0e4736") {
 		t.Fatalf("trace file lacks the call's span in the caller's trace:\n%.2000s", s)
+	}
+}
+
+// fakeCollector is an OTLP/gRPC trace collector that records the spans it
+// receives.
+type fakeCollector struct {
+	coltracepb.UnimplementedTraceServiceServer
+	mu    sync.Mutex
+	spans map[string]string // span name → trace id (hex)
+}
+
+func (f *fakeCollector) Export(_ context.Context, req *coltracepb.ExportTraceServiceRequest) (*coltracepb.ExportTraceServiceResponse, error) {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	for _, rs := range req.GetResourceSpans() {
+		for _, ss := range rs.GetScopeSpans() {
+			for _, sp := range ss.GetSpans() {
+				f.spans[sp.GetName()] = hex.EncodeToString(sp.GetTraceId())
+			}
+		}
+	}
+	return &coltracepb.ExportTraceServiceResponse{}, nil
+}
+
+// TestTraceOTLP sends the daemon's spans to a collector over OTLP/gRPC on
+// loopback (plain text), together with the trace file: both receive the
+// call's span, in the caller's trace.
+func TestTraceOTLP(t *testing.T) {
+	col := &fakeCollector{spans: map[string]string{}}
+	l, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	gs := grpc.NewServer()
+	coltracepb.RegisterTraceServiceServer(gs, col)
+	go gs.Serve(l)
+	t.Cleanup(gs.Stop)
+	path := filepath.Join(t.TempDir(), "spans.json")
+	const traceID = "4bf92f3577b34da6a3ce929d0e0e4736"
+	t.Run("serve", func(t *testing.T) {
+		lines, _ := runWith(t, Config{TraceFile: path, TraceOTLP: "http://" + l.Addr().String()})
+		c := mixdv1.NewMixtureServiceClient(dialWith(t, lines[ListeningPrefix], grpc.WithTransportCredentials(insecure.NewCredentials())))
+		ctx := metadata.AppendToOutgoingContext(context.Background(), "traceparent", "00-"+traceID+"-00f067aa0ba902b7-01")
+		if _, err := c.ListModels(ctx, &mixdv1.ListModelsRequest{}); err != nil {
+			t.Fatal(err)
+		}
+	}) // Run has returned: the spans are flushed to both exporters.
+	col.mu.Lock()
+	got, ok := col.spans["mixd.v1.MixtureService/ListModels"]
+	col.mu.Unlock()
+	if !ok || got != traceID {
+		t.Fatalf("collector received %v; want the ListModels span in trace %s", col.spans, traceID)
+	}
+	if b, err := os.ReadFile(path); err != nil || !strings.Contains(string(b), traceID) {
+		t.Fatalf("trace file (%v) lacks the span:\n%.500s", err, b)
+	}
+}
+
+// TestTraceOTLPCollectorDown: a collector that cannot be reached costs
+// spans, not calls, and does not hold up shutdown beyond its flush bound.
+func TestTraceOTLPCollectorDown(t *testing.T) {
+	l, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	addr := l.Addr().String()
+	l.Close() // nobody listens here
+	start := time.Now()
+	t.Run("serve", func(t *testing.T) {
+		lines, _ := runWith(t, Config{TraceOTLP: "http://" + addr})
+		c := mixdv1.NewMixtureServiceClient(dialWith(t, lines[ListeningPrefix], grpc.WithTransportCredentials(insecure.NewCredentials())))
+		for range 3 {
+			if _, err := c.ListModels(context.Background(), &mixdv1.ListModelsRequest{}); err != nil {
+				t.Fatal(err)
+			}
+		}
+	})
+	// The flush is bounded by 5 s (tracing.close); the test's own bound
+	// on Run returning is 20 s.
+	if d := time.Since(start); d > 15*time.Second {
+		t.Fatalf("serving and shutdown took %v with the collector down", d)
+	}
+}
+
+func TestCheckOTLPEndpoint(t *testing.T) {
+	for _, c := range []struct {
+		in, err string
+	}{
+		{"http://127.0.0.1:4317", ""},
+		{"https://collector.example:4317", ""},
+		{"http://[::1]:4317/", ""},
+		{"127.0.0.1:4317", "want http://HOST:PORT"},
+		{"grpc://127.0.0.1:4317", "want http://HOST:PORT"},
+		{"http://collector", "host and port"},
+		{"http://:4317", "host and port"},
+		{"http://u:p@collector:4317", "only a scheme, host and port"},
+		{"http://collector:4317/v1/traces", "only a scheme, host and port"},
+		{"http://collector:4317?x=1", "only a scheme, host and port"},
+	} {
+		err := CheckOTLPEndpoint(c.in)
+		if (c.err == "") != (err == nil) || (err != nil && !strings.Contains(err.Error(), c.err)) {
+			t.Errorf("CheckOTLPEndpoint(%q) = %v, want %q", c.in, err, c.err)
+		}
 	}
 }

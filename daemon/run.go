@@ -113,6 +113,10 @@ type Config struct {
 	// TraceFile, when set, records an OpenTelemetry span per call in this
 	// file (JSON, one span per object).
 	TraceFile string
+	// TraceOTLP, when set, sends an OpenTelemetry span per call to the OTLP
+	// collector at this gRPC endpoint: http://HOST:PORT (plain text) or
+	// https://HOST:PORT (TLS). It may be combined with TraceFile.
+	TraceOTLP string
 }
 
 // Run serves the mixd API until ctx is done, then shuts down gracefully:

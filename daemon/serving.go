@@ -75,8 +75,8 @@ func newExtras(cfg Config, log *slog.Logger) (*extras, error) {
 	if cfg.MetricsListen != "" {
 		x.metrics = NewMetrics()
 	}
-	if cfg.TraceFile != "" {
-		t, err := newTracing(cfg.TraceFile)
+	if cfg.TraceFile != "" || cfg.TraceOTLP != "" {
+		t, err := newTracing(cfg.TraceFile, cfg.TraceOTLP)
 		if err != nil {
 			return nil, err
 		}

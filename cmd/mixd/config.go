@@ -154,6 +154,7 @@ func addExtraFlags(fs *flag.FlagSet, cfg *daemon.Config, x *extraFlags) {
 	fs.StringVar(&cfg.HealthListen, "health-listen", "", "serve only gRPC health checks, plain text and without tokens, on this host:port (for probes)")
 	fs.StringVar(&cfg.PluginManifest, "plugin-manifest", "", "manifest pinning the SHA-256 of every executable in --plugin-dir (lines of: FILE sha256:HEX)")
 	fs.StringVar(&cfg.TraceFile, "trace-file", "", "write an OpenTelemetry span per call to this file as JSON (off when empty)")
+	fs.StringVar(&cfg.TraceOTLP, "trace-otlp", "", "send an OpenTelemetry span per call to the OTLP/gRPC collector at this URL: http://HOST:PORT (plain text) or https://HOST:PORT (TLS) (off when empty)")
 	fs.Var(&x.fitMemory, "max-fit-memory", "largest estimated memory of one fit (e.g. 4GiB)")
 }
 
@@ -172,6 +173,11 @@ func (x *extraFlags) finish(cfg *daemon.Config) error {
 	cfg.Limits.MaxFitMemory = int64(x.fitMemory)
 	if err := cfg.TLS.Validate(); err != nil {
 		return err
+	}
+	if cfg.TraceOTLP != "" {
+		if err := daemon.CheckOTLPEndpoint(cfg.TraceOTLP); err != nil {
+			return err
+		}
 	}
 	if cfg.PluginManifest != "" && cfg.PluginDir == "" {
 		return errors.New("--plugin-manifest pins executables of --plugin-dir; set --plugin-dir too")

@@ -157,6 +157,8 @@ func TestBadConfigExitsWithUsage(t *testing.T) {
 		{[]string{"serve"}, [2]string{"MIXD_LOG_FORMAT", "xml"}, exitUsage, `--log-format is "xml"`},
 		{[]string{"serve", "--default-timeout", "-1s"}, [2]string{}, exitUsage, "--default-timeout is -1s"},
 		{[]string{"serve", "--max-fit-memory", "0"}, [2]string{}, exitUsage, "--max-fit-memory is 0"},
+		{[]string{"serve", "--trace-otlp", "127.0.0.1:4317"}, [2]string{}, exitUsage, "want http://HOST:PORT"},
+		{[]string{"serve"}, [2]string{"MIXD_TRACE_OTLP", "http://collector"}, exitUsage, "give the collector's host and port"},
 		{[]string{"serve", "--tls-key", "k.pem"}, [2]string{}, exitUsage, "--tls-cert"},
 		{[]string{"serve", "--plugin-manifest", "m"}, [2]string{}, exitUsage, "set --plugin-dir too"},
 		{[]string{"serve", "--data-dir", dir, "--listen", "127.0.0.1:0", "--token-file", filepath.Join(dir, "none")}, [2]string{}, exitError, "token file"},

@@ -75,6 +75,9 @@ Flags (each also accepted with a single dash):
 	--health-listen ADDR       "". grpc.health.v1 alone, plain text, no tokens, on
 	                           this host:port (for probes).
 	--trace-file FILE          "". An OpenTelemetry span per call, as JSON lines.
+	--trace-otlp URL           "". An OpenTelemetry span per call, sent to the OTLP/gRPC
+	                           collector at http://HOST:PORT (plain text) or
+	                           https://HOST:PORT (TLS).
 	--config FILE              "". JSON object of settings keyed by flag name.
 
 Every setting may also come from the environment, as MIXD_ followed by the
