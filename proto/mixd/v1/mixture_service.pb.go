@@ -3590,7 +3590,8 @@ const file_mixd_v1_mixture_service_proto_rawDesc = "" +
 	"\vExportModel\x12\x1b.mixd.v1.ExportModelRequest\x1a\x1c.mixd.v1.ExportModelResponse\x12H\n" +
 	"\vImportModel\x12\x1b.mixd.v1.ImportModelRequest\x1a\x1c.mixd.v1.ImportModelResponse\x12H\n" +
 	"\vListFitters\x12\x1b.mixd.v1.ListFittersRequest\x1a\x1c.mixd.v1.ListFittersResponse\x12N\n" +
-	"\rReloadFitters\x12\x1d.mixd.v1.ReloadFittersRequest\x1a\x1e.mixd.v1.ReloadFittersResponseB/Z-github.com/mixd-dev/mixd/proto/mixd/v1;mixdv1b\x06proto3"
+	"\rReloadFitters\x12\x1d.mixd.v1.ReloadFittersRequest\x1a\x1e.mixd.v1.ReloadFittersResponseB@\n" +
+	"\x0fdev.mixd.api.v1Z-github.com/mixd-dev/mixd/proto/mixd/v1;mixdv1b\x06proto3"
 
 var (
 	file_mixd_v1_mixture_service_proto_rawDescOnce sync.Once

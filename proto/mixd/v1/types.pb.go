@@ -1868,7 +1868,8 @@ const file_mixd_v1_types_proto_rawDesc = "" +
 	"\x15FIT_JOB_STATE_RUNNING\x10\x03\x12\x1b\n" +
 	"\x17FIT_JOB_STATE_SUCCEEDED\x10\x04\x12\x18\n" +
 	"\x14FIT_JOB_STATE_FAILED\x10\x05\x12\x1b\n" +
-	"\x17FIT_JOB_STATE_CANCELLED\x10\x06B/Z-github.com/mixd-dev/mixd/proto/mixd/v1;mixdv1b\x06proto3"
+	"\x17FIT_JOB_STATE_CANCELLED\x10\x06B@\n" +
+	"\x0fdev.mixd.api.v1Z-github.com/mixd-dev/mixd/proto/mixd/v1;mixdv1b\x06proto3"
 
 var (
 	file_mixd_v1_types_proto_rawDescOnce sync.Once

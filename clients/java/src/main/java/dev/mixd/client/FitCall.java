@@ -1,7 +1,7 @@
 package dev.mixd.client;
 
 import java.util.concurrent.CompletableFuture;
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 
 /**
  * A fit (or a watch of a fit job) in progress: its job, its eventual model, and a way to cancel

@@ -1,7 +1,7 @@
 package dev.mixd.client;
 
 import java.util.Optional;
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 
 /** A fit job as the daemon reports it and, once it succeeded, the model it wrote. */
 public final class FitJobStatus {

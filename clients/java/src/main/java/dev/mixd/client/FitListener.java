@@ -1,6 +1,6 @@
 package dev.mixd.client;
 
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 
 /**
  * Receives the events of a running fit: the job first, then progress as the fitter iterates. The

@@ -5,7 +5,7 @@ import java.util.List;
 import java.util.Map;
 import java.util.Objects;
 import java.util.OptionalDouble;
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 
 /**
  * What to fit: the estimation method and its settings. Zero values leave the choice to the daemon

@@ -37,43 +37,43 @@ import java.util.function.Consumer;
 import java.util.function.Function;
 import java.util.function.IntFunction;
 import java.util.function.Supplier;
-import mixd.v1.MixtureServiceGrpc;
-import mixd.v1.MixtureServiceOuterClass.CancelFitJobRequest;
-import mixd.v1.MixtureServiceOuterClass.ClassifyRequest;
-import mixd.v1.MixtureServiceOuterClass.ClassifyResponse;
-import mixd.v1.MixtureServiceOuterClass.ClassifyStreamRequest;
-import mixd.v1.MixtureServiceOuterClass.ClassifyStreamResponse;
-import mixd.v1.MixtureServiceOuterClass.CompareModelsRequest;
-import mixd.v1.MixtureServiceOuterClass.CompareModelsResponse;
-import mixd.v1.MixtureServiceOuterClass.CreateFitJobRequest;
-import mixd.v1.MixtureServiceOuterClass.CreateFitJobResponse;
-import mixd.v1.MixtureServiceOuterClass.DeleteModelRequest;
-import mixd.v1.MixtureServiceOuterClass.ExportModelRequest;
-import mixd.v1.MixtureServiceOuterClass.FitRequest;
-import mixd.v1.MixtureServiceOuterClass.FitResponse;
-import mixd.v1.MixtureServiceOuterClass.GetFitJobRequest;
-import mixd.v1.MixtureServiceOuterClass.GetFitJobResponse;
-import mixd.v1.MixtureServiceOuterClass.GetModelRequest;
-import mixd.v1.MixtureServiceOuterClass.ImportModelRequest;
-import mixd.v1.MixtureServiceOuterClass.ListFitJobsRequest;
-import mixd.v1.MixtureServiceOuterClass.ListFitJobsResponse;
-import mixd.v1.MixtureServiceOuterClass.ListFittersRequest;
-import mixd.v1.MixtureServiceOuterClass.ListModelVersionsRequest;
-import mixd.v1.MixtureServiceOuterClass.ListModelVersionsResponse;
-import mixd.v1.MixtureServiceOuterClass.ListModelsRequest;
-import mixd.v1.MixtureServiceOuterClass.ListModelsResponse;
-import mixd.v1.MixtureServiceOuterClass.PredictRequest;
-import mixd.v1.MixtureServiceOuterClass.PredictResponse;
-import mixd.v1.MixtureServiceOuterClass.SampleRequest;
-import mixd.v1.MixtureServiceOuterClass.SampleStreamRequest;
-import mixd.v1.MixtureServiceOuterClass.SampleStreamResponse;
-import mixd.v1.MixtureServiceOuterClass.ScoreRequest;
-import mixd.v1.MixtureServiceOuterClass.ScoreResponse;
-import mixd.v1.MixtureServiceOuterClass.ScoreStreamRequest;
-import mixd.v1.MixtureServiceOuterClass.ScoreStreamResponse;
-import mixd.v1.MixtureServiceOuterClass.WatchFitJobRequest;
-import mixd.v1.MixtureServiceOuterClass.WatchFitJobResponse;
-import mixd.v1.Types;
+import dev.mixd.api.v1.MixtureServiceGrpc;
+import dev.mixd.api.v1.MixtureServiceOuterClass.CancelFitJobRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ClassifyRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ClassifyResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ClassifyStreamRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ClassifyStreamResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.CompareModelsRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.CompareModelsResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.CreateFitJobRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.CreateFitJobResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.DeleteModelRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ExportModelRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.FitRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.FitResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.GetFitJobRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.GetFitJobResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.GetModelRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ImportModelRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ListFitJobsRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ListFitJobsResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ListFittersRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ListModelVersionsRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ListModelVersionsResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ListModelsRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ListModelsResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.PredictRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.PredictResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.SampleRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.SampleStreamRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.SampleStreamResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ScoreRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ScoreResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ScoreStreamRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.ScoreStreamResponse;
+import dev.mixd.api.v1.MixtureServiceOuterClass.WatchFitJobRequest;
+import dev.mixd.api.v1.MixtureServiceOuterClass.WatchFitJobResponse;
+import dev.mixd.api.v1.Types;
 
 /**
  * A connection to one mixd daemon, with typed calls that take and return plain Java arrays.
@@ -2191,7 +2191,7 @@ public final class MixdClient implements AutoCloseable {
 
   private static CompareResult compareResult(CompareModelsResponse r) {
     List<ComponentMatch> matches = new ArrayList<>(r.getMatchesCount());
-    for (mixd.v1.MixtureServiceOuterClass.ComponentMatch m : r.getMatchesList()) {
+    for (dev.mixd.api.v1.MixtureServiceOuterClass.ComponentMatch m : r.getMatchesList()) {
       matches.add(
           new ComponentMatch(
               m.getComponent(),

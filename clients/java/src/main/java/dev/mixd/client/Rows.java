@@ -6,7 +6,7 @@ import java.nio.ByteBuffer;
 import java.nio.ByteOrder;
 import java.nio.DoubleBuffer;
 import java.util.Objects;
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 
 /**
  * Input rows of a call, held as the caller gave them (a {@code double[][]} or a flat array with a

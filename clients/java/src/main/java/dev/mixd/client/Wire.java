@@ -3,7 +3,7 @@ package dev.mixd.client;
 import com.google.protobuf.ByteString;
 import java.nio.ByteOrder;
 import java.util.List;
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 
 /**
  * Decoding of the matrices and labels the daemon returns, in either encoding, straight into the

@@ -6,7 +6,7 @@
  * dev.mixd.client.ScoreResult}, {@link dev.mixd.client.ClassifyResult}, {@link
  * dev.mixd.client.SampleResult}, {@link dev.mixd.client.PredictResult}, {@link
  * dev.mixd.client.CompareResult}); models, jobs and fitters are the generated protocol messages of
- * package {@code mixd.v1} ({@code Types.Model}, {@code Types.FitJob}, {@code Types.FitterInfo}).
+ * package {@code dev.mixd.api.v1} ({@code Types.Model}, {@code Types.FitJob}, {@code Types.FitterInfo}).
  * Failures are {@link dev.mixd.client.MixdException}s carrying the gRPC status code and the
  * daemon's message.
  */

@@ -142,8 +142,8 @@ class ErrorsTest {
         () -> client.predict(MODEL, rows, null, PredictOptions.defaults().withDraws(-1, 0)));
 
     // Refused by the daemon: a mask of the wrong length sent through the generated stub.
-    mixd.v1.MixtureServiceOuterClass.ScoreRequest req =
-        mixd.v1.MixtureServiceOuterClass.ScoreRequest.newBuilder()
+    dev.mixd.api.v1.MixtureServiceOuterClass.ScoreRequest req =
+        dev.mixd.api.v1.MixtureServiceOuterClass.ScoreRequest.newBuilder()
             .setModel(MODEL)
             .setRows(Rows.of(rows, "rows").encode(0, 4))
             .setObservedMask(com.google.protobuf.ByteString.copyFrom(new byte[] {1, 0}))
@@ -155,7 +155,7 @@ class ErrorsTest {
             req,
             new io.grpc.stub.StreamObserver<>() {
               @Override
-              public void onNext(mixd.v1.MixtureServiceOuterClass.ScoreResponse v) {
+              public void onNext(dev.mixd.api.v1.MixtureServiceOuterClass.ScoreResponse v) {
                 f.complete(v);
               }
 

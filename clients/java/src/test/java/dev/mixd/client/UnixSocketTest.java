@@ -5,7 +5,7 @@ import static org.junit.jupiter.api.Assertions.assertEquals;
 import static org.junit.jupiter.api.Assertions.assertTrue;
 
 import io.grpc.netty.shaded.io.netty.channel.epoll.Epoll;
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 import org.junit.jupiter.api.Test;
 
 /** A daemon listening on a Unix socket, reached through the epoll transport (Linux). */

@@ -7,7 +7,7 @@ import static org.junit.jupiter.api.Assertions.assertTrue;
 
 import com.google.protobuf.ByteString;
 import io.grpc.Status;
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 import org.junit.jupiter.api.Test;
 
 /** The byte layout of matrices and labels, and the checks on shapes. */

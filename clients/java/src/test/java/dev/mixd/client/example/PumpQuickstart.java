@@ -5,7 +5,7 @@ import dev.mixd.client.FitOptions;
 import dev.mixd.client.MixdClient;
 import dev.mixd.client.ScoreResult;
 import java.util.SplittableRandom;
-import mixd.v1.Types;
+import dev.mixd.api.v1.Types;
 
 /** Fits a model of pumping-station readings and scores two new readings. */
 public final class PumpQuickstart {
